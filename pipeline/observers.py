@@ -1,0 +1,89 @@
+"""Observer groups: named sets of points (a list, a plane grid or a sphere of directions),
+with the fixed direction and distance the far-field approximation uses."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pandas as pd
+
+from .errors import ObserverError
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class ObserverGroup:
+    """points_m (P, 3); origin_m (3,): where far-field directions are seen from (the
+    sphere's center, else the coordinate origin); theta_rad, phi_rad (P,) for spheres."""
+
+    name: str
+    kind: str
+    points_m: np.ndarray
+    origin_m: np.ndarray
+    theta_rad: np.ndarray | None = None
+    phi_rad: np.ndarray | None = None
+
+    @property
+    def n_points(self) -> int:
+        return int(self.points_m.shape[0])
+
+    def far_geometry(self):
+        """(directions (P, 3), distances_m (P,)) from origin_m to each point."""
+        offset = self.points_m - self.origin_m
+        distance = np.sqrt(np.einsum("ij,ij->i", offset, offset))
+        if np.any(distance == 0.0):
+            point = int(np.flatnonzero(distance == 0.0)[0])
+            raise ObserverError(f"observer group '{self.name}', point {point}: the far-field "
+                                "approximation needs a point away from the origin it is seen "
+                                "from")
+        return offset / distance[:, None], distance
+
+    def table(self) -> pd.DataFrame:
+        """SPEC's observers table for this group."""
+        frame = pd.DataFrame({
+            "observer": self.name,
+            "point": np.arange(self.n_points, dtype=np.int64),
+            "x": self.points_m[:, 0], "y": self.points_m[:, 1], "z": self.points_m[:, 2]})
+        if self.kind == "sphere":
+            frame["theta"] = self.theta_rad
+            frame["phi"] = self.phi_rad
+        return frame
+
+
+def _unit(vector, what: str, name: str) -> np.ndarray:
+    vector = np.asarray(vector, dtype=float)
+    norm = np.linalg.norm(vector)
+    if norm == 0.0:
+        raise ObserverError(f"observer group '{name}': plane vector {what} is zero")
+    return vector / norm
+
+
+def build_group(config) -> ObserverGroup:
+    """The ObserverGroup described by an ObserverConfig."""
+    origin = np.zeros(3)
+    if config.kind == "points":
+        points = np.asarray(config.points_m, dtype=float).reshape(-1, 3)
+        if points.shape[0] == 0:
+            raise ObserverError(f"observer group '{config.name}' has no points")
+        return ObserverGroup(config.name, "points", points, origin)
+    center = np.asarray(config.center_m, dtype=float)
+    if config.kind == "plane":
+        u = _unit(config.u, "u", config.name)
+        v = _unit(config.v, "v", config.name)
+        if np.linalg.norm(np.cross(u, v)) < 1e-9:
+            raise ObserverError(f"observer group '{config.name}': plane vectors u and v are "
+                                "parallel")
+        n_u, n_v = config.shape
+        a = np.linspace(-0.5, 0.5, n_u) * config.size_m[0] if n_u > 1 else np.zeros(1)
+        b = np.linspace(-0.5, 0.5, n_v) * config.size_m[1] if n_v > 1 else np.zeros(1)
+        aa, bb = np.meshgrid(a, b, indexing="ij")  # point = i_u * n_v + i_v
+        points = center + aa.reshape(-1, 1) * u + bb.reshape(-1, 1) * v
+        return ObserverGroup(config.name, "plane", points, origin)
+    theta = np.linspace(config.theta_rad[0], config.theta_rad[1], config.theta_rad[2])
+    phi = np.linspace(config.phi_rad[0], config.phi_rad[1], config.phi_rad[2])
+    tt, pp = np.meshgrid(theta, phi, indexing="ij")  # point = i_theta * n_phi + i_phi
+    tt = tt.ravel()
+    pp = pp.ravel()
+    directions = np.stack([np.sin(tt) * np.cos(pp), np.sin(tt) * np.sin(pp), np.cos(tt)], axis=1)
+    points = center + config.radius_m * directions
+    return ObserverGroup(config.name, "sphere", points, center, theta_rad=tt, phi_rad=pp)

@@ -1,0 +1,34 @@
+"""`Signals`: the result of a run, as the tables SPEC names (pandas DataFrames, SI units)."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import pandas as pd
+
+
+@dataclasses.dataclass
+class Signals:
+    """What a run computed.
+
+    observers: observer (str), point (int), x, y, z (m); theta, phi (rad) for spheres.
+    fields: observer, point, t (s), Ex, Ey, Ez (V/m), Bx, By, Bz (T).
+    spectra: observer, point, f (Hz), E*_re/E*_im (V·s/m, coherent runs), fluence
+        (J/(m²·Hz)), dW_df_dOmega (J/(Hz·sr), spheres); None when no [spectrum] was asked.
+    summary: a dict of run facts (version, run file, checksums, warnings, timings).
+    """
+
+    observers: pd.DataFrame
+    fields: pd.DataFrame
+    spectra: pd.DataFrame | None = None
+    summary: dict = dataclasses.field(default_factory=dict)
+
+    def tables(self) -> dict[str, pd.DataFrame]:
+        """The tables that exist, by their file stem ("observers", "fields", "spectra")."""
+        out = {"observers": self.observers, "fields": self.fields}
+        if self.spectra is not None:
+            out["spectra"] = self.spectra
+        return out
+
+    def __getitem__(self, name: str) -> pd.DataFrame:
+        return self.tables()[name]
