@@ -74,75 +74,116 @@ def _deposit_segment(out_p, ta, tb, dp, ea, eb, w, edge0, step, n_bins):
                                  - h * (previous_h10 * ea[c] + previous_h11 * eb[c]))
 
 
+BLOCK = 256  # source samples per block: scratch arrays stay in the L1/L2 cache
+
+
 @jit
-def _near_sample(ox, oy, oz, t, pos, beta, inv_g2, beta_dot, j, q, f, fd, e):
-    """Observer time of sample j; fills q (bracket terms), f (source-time integrands),
-    fd (their source-time derivatives) and e (pointwise E and n×E per q/4πε0)."""
-    dx = ox - pos[j, 0]
-    dy = oy - pos[j, 1]
-    dz = oz - pos[j, 2]
-    r = math.sqrt(dx * dx + dy * dy + dz * dz)
-    inv_r = 1.0 / r
-    nx = dx * inv_r
-    ny = dy * inv_r
-    nz = dz * inv_r
-    bx = beta[j, 0]
-    by = beta[j, 1]
-    bz = beta[j, 2]
-    nb = nx * bx + ny * by + nz * bz
-    cx = ny * bz - nz * by  # n × β
-    cy = nz * bx - nx * bz
-    cz = nx * by - ny * bx
-    kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
-    inv_ckr = inv_r / (C * kappa)
-    # n×(n×β) = n(n·β) − β
-    tx = nx * nb - bx
-    ty = ny * nb - by
-    tz = nz * nb - bz
-    q[0] = nx * inv_r / C + tx * inv_ckr
-    q[1] = ny * inv_r / C + ty * inv_ckr
-    q[2] = nz * inv_r / C + tz * inv_ckr
-    q[3] = -cx * inv_ckr
-    q[4] = -cy * inv_ckr
-    q[5] = -cz * inv_ckr
-    inv_r2 = inv_r * inv_r
-    f[0] = nx * inv_r2
-    f[1] = ny * inv_r2
-    f[2] = nz * inv_r2
-    f[3] = -cx * inv_r2
-    f[4] = -cy * inv_r2
-    f[5] = -cz * inv_r2
-    # d/dt′ (n/R²) = c(3n(n·β) − β)/R³ ;  d/dt′ (n×β/R²) = 3c(n·β)(n×β)/R³ + n×β̇/R²
-    ax = beta_dot[j, 0]
-    ay = beta_dot[j, 1]
-    az = beta_dot[j, 2]
-    c_r3 = C * inv_r2 * inv_r
-    fd[0] = c_r3 * (3.0 * nx * nb - bx)
-    fd[1] = c_r3 * (3.0 * ny * nb - by)
-    fd[2] = c_r3 * (3.0 * nz * nb - bz)
-    fd[3] = -(3.0 * nb * cx * c_r3 + (ny * az - nz * ay) * inv_r2)
-    fd[4] = -(3.0 * nb * cy * c_r3 + (nz * ax - nx * az) * inv_r2)
-    fd[5] = -(3.0 * nb * cz * c_r3 + (nx * ay - ny * ax) * inv_r2)
-    # pointwise field: (n−β)/(γ²κ³R²) + n×((n−β)×β̇)/(cκ³R)
-    inv_k3 = 1.0 / (kappa * kappa * kappa)
-    mx = nx - bx
-    my = ny - by
-    mz = nz - bz
-    wx = my * az - mz * ay  # (n−β)×β̇
-    wy = mz * ax - mx * az
-    wz = mx * ay - my * ax
-    vel = inv_g2[j] * inv_k3 * inv_r2
-    rad = inv_k3 * inv_r / C
-    ex = mx * vel + (ny * wz - nz * wy) * rad
-    ey = my * vel + (nz * wx - nx * wz) * rad
-    ez = mz * vel + (nx * wy - ny * wx) * rad
-    e[0] = ex
-    e[1] = ey
-    e[2] = ez
-    e[3] = ny * ez - nz * ey
-    e[4] = nz * ex - nx * ez
-    e[5] = nx * ey - ny * ex
-    return t[j] + r / C
+def _near_block(ox, oy, oz, t, pos, beta, inv_g2, beta_dot, first, count, t_obs, scratch):
+    """Per-sample quantities of samples first … first+count−1, seen from (ox, oy, oz).
+
+    t_obs[i]: observer time. scratch rows 0–5: bracket terms q (E then B parts); 6–11:
+    source-time integrands f; 12–17: their source-time derivatives; 18–23: pointwise
+    E and n×E, all per q/(4πε0). Written as one flat loop so that LLVM vectorises it.
+    """
+    for i in range(count):
+        j = first + i
+        dx = ox - pos[j, 0]
+        dy = oy - pos[j, 1]
+        dz = oz - pos[j, 2]
+        r = math.sqrt(dx * dx + dy * dy + dz * dz)
+        inv_r = 1.0 / r
+        nx = dx * inv_r
+        ny = dy * inv_r
+        nz = dz * inv_r
+        bx = beta[j, 0]
+        by = beta[j, 1]
+        bz = beta[j, 2]
+        nb = nx * bx + ny * by + nz * bz
+        cx = ny * bz - nz * by  # n × β
+        cy = nz * bx - nx * bz
+        cz = nx * by - ny * bx
+        kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
+        inv_ckr = inv_r / (C * kappa)
+        # n×(n×β) = n(n·β) − β
+        scratch[0, i] = nx * inv_r / C + (nx * nb - bx) * inv_ckr
+        scratch[1, i] = ny * inv_r / C + (ny * nb - by) * inv_ckr
+        scratch[2, i] = nz * inv_r / C + (nz * nb - bz) * inv_ckr
+        scratch[3, i] = -cx * inv_ckr
+        scratch[4, i] = -cy * inv_ckr
+        scratch[5, i] = -cz * inv_ckr
+        inv_r2 = inv_r * inv_r
+        scratch[6, i] = nx * inv_r2
+        scratch[7, i] = ny * inv_r2
+        scratch[8, i] = nz * inv_r2
+        scratch[9, i] = -cx * inv_r2
+        scratch[10, i] = -cy * inv_r2
+        scratch[11, i] = -cz * inv_r2
+        # d/dt′ (n/R²) = c(3n(n·β) − β)/R³ ;  d/dt′ (n×β/R²) = 3c(n·β)(n×β)/R³ + n×β̇/R²
+        ax = beta_dot[j, 0]
+        ay = beta_dot[j, 1]
+        az = beta_dot[j, 2]
+        c_r3 = C * inv_r2 * inv_r
+        scratch[12, i] = c_r3 * (3.0 * nx * nb - bx)
+        scratch[13, i] = c_r3 * (3.0 * ny * nb - by)
+        scratch[14, i] = c_r3 * (3.0 * nz * nb - bz)
+        scratch[15, i] = -(3.0 * nb * cx * c_r3 + (ny * az - nz * ay) * inv_r2)
+        scratch[16, i] = -(3.0 * nb * cy * c_r3 + (nz * ax - nx * az) * inv_r2)
+        scratch[17, i] = -(3.0 * nb * cz * c_r3 + (nx * ay - ny * ax) * inv_r2)
+        # pointwise field: (n−β)/(γ²κ³R²) + n×((n−β)×β̇)/(cκ³R)
+        inv_k3 = 1.0 / (kappa * kappa * kappa)
+        mx = nx - bx
+        my = ny - by
+        mz = nz - bz
+        wx = my * az - mz * ay  # (n−β)×β̇
+        wy = mz * ax - mx * az
+        wz = mx * ay - my * ax
+        vel = inv_g2[j] * inv_k3 * inv_r2
+        rad = inv_k3 * inv_r / C
+        ex = mx * vel + (ny * wz - nz * wy) * rad
+        ey = my * vel + (nz * wx - nx * wz) * rad
+        ez = mz * vel + (nx * wy - ny * wx) * rad
+        scratch[18, i] = ex
+        scratch[19, i] = ey
+        scratch[20, i] = ez
+        scratch[21, i] = ny * ez - nz * ey
+        scratch[22, i] = nz * ex - nx * ez
+        scratch[23, i] = nx * ey - ny * ex
+        t_obs[i] = t[j] + r / C
+
+
+@jit
+def _near_increments(t, first, count, scratch, increments):
+    """increments[c, i]: the primitive's change from sample first+i to first+i+1
+    (bracket difference plus the trapezoid rule with its Euler–Maclaurin correction)."""
+    for c in range(6):
+        for i in range(count - 1):
+            h = t[first + i + 1] - t[first + i]
+            increments[c, i] = ((scratch[c, i + 1] - scratch[c, i])
+                                + 0.5 * h * (scratch[6 + c, i] + scratch[6 + c, i + 1])
+                                + h * h / 12.0 * (scratch[12 + c, i] - scratch[12 + c, i + 1]))
+
+
+@jit
+def _deposit_block(out_p, t_obs, count, increments, scratch, w, edge0, step, n_bins):
+    """Deposit the count−1 segment increments of a block into the bins."""
+    dp = np.empty(6)
+    ea = np.empty(6)
+    eb = np.empty(6)
+    for i in range(count - 1):
+        ta = t_obs[i]
+        tb = t_obs[i + 1]
+        ka = math.floor((ta - edge0) / step)
+        kb = math.floor((tb - edge0) / step)
+        if ka == kb:
+            if 0 <= ka < n_bins:
+                for c in range(6):
+                    out_p[ka, c] += w * increments[c, i]
+            continue
+        for c in range(6):
+            dp[c] = increments[c, i]
+            ea[c] = scratch[18 + c, i]
+            eb[c] = scratch[18 + c, i + 1]
+        _deposit_segment(out_p, ta, tb, dp, ea, eb, w, edge0, step, n_bins)
 
 
 @jit(parallel=True)
@@ -158,41 +199,21 @@ def deposit_near(t, pos, beta, inv_g2, beta_dot, offsets, scale, observers, edge
     n_points = observers.shape[0]
     n_particles = offsets.shape[0] - 1
     for p in numba.prange(n_points):
-        ox = observers[p, 0]
-        oy = observers[p, 1]
-        oz = observers[p, 2]
-        out_p = out[p]
-        qa = np.empty(6)
-        qb = np.empty(6)
-        fa = np.empty(6)
-        fb = np.empty(6)
-        fda = np.empty(6)
-        fdb = np.empty(6)
-        ea = np.empty(6)
-        eb = np.empty(6)
-        dp = np.empty(6)
+        scratch = np.empty((24, BLOCK))
+        increments = np.empty((6, BLOCK))
+        t_obs = np.empty(BLOCK)
         for m in range(n_particles):
             first = offsets[m]
             last = offsets[m + 1]
-            if last - first < 2:
-                continue
-            w = scale[m]
-            ta = _near_sample(ox, oy, oz, t, pos, beta, inv_g2, beta_dot, first,
-                              qa, fa, fda, ea)
-            for j in range(first + 1, last):
-                tb = _near_sample(ox, oy, oz, t, pos, beta, inv_g2, beta_dot, j,
-                                  qb, fb, fdb, eb)
-                h = t[j] - t[j - 1]
-                for c in range(6):
-                    dp[c] = ((qb[c] - qa[c]) + 0.5 * h * (fa[c] + fb[c])
-                             + h * h / 12.0 * (fda[c] - fdb[c]))
-                _deposit_segment(out_p, ta, tb, dp, ea, eb, w, edge0[p], step, n_bins[p])
-                for c in range(6):
-                    qa[c] = qb[c]
-                    fa[c] = fb[c]
-                    fda[c] = fdb[c]
-                    ea[c] = eb[c]
-                ta = tb
+            # blocks overlap by one sample so that every segment lies inside one block
+            while last - first >= 2:
+                count = min(BLOCK, last - first)
+                _near_block(observers[p, 0], observers[p, 1], observers[p, 2], t, pos, beta,
+                            inv_g2, beta_dot, first, count, t_obs, scratch)
+                _near_increments(t, first, count, scratch, increments)
+                _deposit_block(out[p], t_obs, count, increments, scratch, scale[m], edge0[p],
+                               step, n_bins[p])
+                first += count - 1
 
 
 @jit

@@ -1,0 +1,82 @@
+"""Parquet import and export (pyarrow). Import walks the file one row group at a time, so
+files larger than memory can be streamed."""
+
+from __future__ import annotations
+
+import pathlib
+
+import lagfield
+from lagfield.tracks import CANONICAL_COLUMNS
+
+MAGIC = b"PAR1"
+
+
+def _wanted_columns(schema_names, options) -> list[str] | None:
+    """The file columns lagfield can use (canonical or mapped names); None: all."""
+    mapping = dict(options.get("columns") or {})
+    names = {mapping.get(canon, canon) for canon in CANONICAL_COLUMNS}
+    wanted = [name for name in schema_names if name in names]
+    return wanted or None
+
+
+class ParquetImporter:
+    """Reads an Apache Parquet table."""
+
+    name = "parquet"
+    description = "Apache Parquet table, read one row group at a time"
+    extensions = (".parquet", ".pq")
+    requires = ("pyarrow",)
+
+    def can_read(self, path) -> bool:
+        path = pathlib.Path(path)
+        if path.stat().st_size < 2 * len(MAGIC) + 4:
+            return False
+        with open(path, "rb") as stream:
+            head = stream.read(len(MAGIC))
+            stream.seek(-len(MAGIC), 2)
+            tail = stream.read(len(MAGIC))
+        return head == MAGIC and tail == MAGIC
+
+    def read(self, path, options):
+        import pyarrow.parquet as pq
+
+        schema = pq.read_schema(path)
+        return pq.read_table(path, columns=_wanted_columns(schema.names, options)).to_pandas()
+
+    def iter_batches(self, path, options):
+        import pyarrow.parquet as pq
+
+        with pq.ParquetFile(path) as parquet_file:
+            columns = _wanted_columns(parquet_file.schema_arrow.names, options)
+            for index in range(parquet_file.num_row_groups):
+                yield parquet_file.read_row_group(index, columns=columns).to_pandas()
+
+
+class ParquetExporter:
+    """Writes every result table as <name>.parquet."""
+
+    name = "parquet"
+    description = "one .parquet file per result table (observers, fields, spectra)"
+    requires = ("pyarrow",)
+
+    def write(self, result, directory, options) -> list[str]:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        written = []
+        for stem, table in result.tables().items():
+            file_name = f"{stem}.parquet"
+            pq.write_table(pa.Table.from_pandas(table, preserve_index=False),
+                           pathlib.Path(directory) / file_name)
+            written.append(file_name)
+        return written
+
+
+@lagfield.hookimpl
+def lagfield_register_importers():
+    return [ParquetImporter()]
+
+
+@lagfield.hookimpl
+def lagfield_register_exporters():
+    return [ParquetExporter()]
