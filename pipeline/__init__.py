@@ -1,6 +1,35 @@
+"""lagfield: Liénard–Wiechert fields, spectra and radiated energy from sampled tracks.
+
+Importing lagfield stays light: numba, matplotlib and pyarrow load only when a run, a
+kernel or a plugin needs them.
+"""
+
+from .errors import (
+    ConfigError,
+    LagfieldError,
+    MotionError,
+    ObserverError,
+    OutputError,
+    PluginError,
+    TrackError,
+    UnitError,
+)
 from .hookspecs import hookimpl
-from .tracks import Track, Tracks, read_tracks
+from .signals import Signals
+from .tracks import Track, Tracks, open_tracks, read_tracks
 
 __version__ = "0.1.0"
 
-__all__ = ["Track", "Tracks", "__version__", "hookimpl", "read_tracks"]
+
+def run(path, **options) -> Signals:
+    """Run the job a run file describes; see `lagfield.runner.run`."""
+    from .runner import run as _run
+
+    return _run(path, **options)
+
+
+__all__ = [
+    "ConfigError", "LagfieldError", "MotionError", "ObserverError", "OutputError",
+    "PluginError", "Signals", "Track", "TrackError", "Tracks", "UnitError", "__version__",
+    "hookimpl", "open_tracks", "read_tracks", "run",
+]

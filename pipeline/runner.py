@@ -1,0 +1,94 @@
+"""`lagfield.run(path)`: the whole job of a run file — read and check the tracks, compute
+the fields (and spectra), assemble SPEC's tables and hand them to the exporters."""
+
+from __future__ import annotations
+
+import os
+import platform
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from . import config as config_module
+from .engine import FieldSettings, compute_fields, track_ends
+from .observers import build_group
+from .outputs import SAFETY_NOTE, check_target, sha256, write_results
+from .registry import get_registry
+from .signals import Signals
+from .tracks import open_tracks
+
+FIELD_COLUMNS = ["Ex", "Ey", "Ez", "Bx", "By", "Bz"]
+
+
+def fields_table(results) -> pd.DataFrame:
+    """SPEC's fields table from the engine's GroupFields."""
+    frames = []
+    for result in results:
+        for point in range(result.group.n_points):
+            n = int(result.n_bins[point])
+            values = np.concatenate([result.e_v_per_m[point, :n], result.b_t[point, :n]], axis=1)
+            frame = pd.DataFrame(values, columns=FIELD_COLUMNS)
+            frame.insert(0, "t", result.times(point))
+            frame.insert(0, "point", np.int64(point))
+            frame.insert(0, "observer", result.group.name)
+            frames.append(frame)
+    return pd.concat(frames, ignore_index=True)
+
+
+def settings_from(config) -> FieldSettings:
+    return FieldSettings(step_s=config.time.step_s, start_s=config.time.start_s,
+                         stop_s=config.time.stop_s, align=config.time.align,
+                         far_field=config.far_field, degree=config.motion.degree,
+                         extend=config.motion.extend, smoothing_m=config.motion.smoothing_m)
+
+
+def run(path, *, overwrite: bool = False, write: bool = True, workers: int | None = None,
+        scheduler: str | None = None, progress=None, registry=None) -> Signals:
+    """Run the job described by the run file at `path`; returns the tables as a Signals
+    (pandas DataFrames) and, when `write`, writes them to [output] dir through the
+    exporters. `progress(n)` is called as particles complete."""
+    started = time.perf_counter()
+    timings = {}
+    config = config_module.load(path)
+    registry = registry or get_registry()
+    exporters = [registry.exporter(name) for name in config.output.formats] if write else []
+    if write:
+        check_target(config.output.dir, overwrite)
+    groups = [build_group(observer) for observer in config.observers]
+    options = dict(format=config.tracks.format, columns=config.tracks.columns,
+                   units=config.tracks.units, charge=config.tracks.charge_c,
+                   min_samples=config.motion.degree + 1, u_tolerance=config.tracks.u_tolerance,
+                   registry=registry)
+    tracks = open_tracks(config.tracks.path, **options)
+    timings["read_s"] = time.perf_counter() - started
+    ends = track_ends(tracks)
+    settings = settings_from(config)
+    t0 = time.perf_counter()
+    results = compute_fields(tracks, groups, settings, ends=ends, progress=progress)
+    timings["fields_s"] = time.perf_counter() - t0
+    observers = pd.concat([group.table() for group in groups], ignore_index=True)
+    signals = Signals(observers=observers, fields=fields_table(results))
+    warnings = [f"plugin '{b.name}' ({b.distribution}) could not be loaded: {b.error}"
+                for b in registry.broken]
+    timings["total_s"] = time.perf_counter() - started
+    from . import __version__
+
+    signals.summary = {
+        "program": "lagfield", "version": __version__,
+        "python": platform.python_version(),
+        "run_file": str(Path(path)), "run": config.raw,
+        "inputs": {str(config.tracks.path): {"sha256": sha256(config.tracks.path)},
+                   str(Path(path)): {"sha256": sha256(Path(path))}},
+        "particles": len(tracks), "observer_groups": [g.name for g in groups],
+        "warnings": warnings, "timings": timings,
+        "environment": {k: v for k, v in os.environ.items() if k.startswith("LAGFIELD_")},
+        "note": SAFETY_NOTE,
+        "output_dir": str(config.output.dir) if write else None,
+    }
+    signals.summary["files"] = []
+    if write:
+        signals.summary["files"] = write_results(signals, config.output.dir, exporters,
+                                                 config.plugins, overwrite=overwrite)
+    return signals
