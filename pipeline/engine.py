@@ -18,6 +18,7 @@ from scipy import constants
 from .errors import LagfieldError, ObserverError
 from .kernels import deposit, sampling
 from .motion import Motion
+from .spectra import SAMPLES_PER_PERIOD, SpectrumAccumulator
 
 C = constants.c
 COULOMB = 1.0 / (4.0 * math.pi * constants.epsilon_0)  # q/(4πε0) factor, V·m/C
@@ -41,23 +42,32 @@ class FieldSettings:
     degree: int = 5
     extend: str = "ballistic"
     smoothing_m: float = 0.0
+    max_frequency_hz: float | None = None  # top frequency of the spectra, when asked
+
+    def resolution_s(self) -> float:
+        """Observer-time scale the source sampling must resolve: the step, or a fraction
+        of the period of the top frequency when spectra are asked."""
+        if not self.max_frequency_hz:
+            return self.step_s
+        return min(self.step_s, SAMPLES_PER_BIN / (SAMPLES_PER_PERIOD * self.max_frequency_hz))
 
 
 @dataclasses.dataclass
 class GroupFields:
     """Bin-averaged fields of one group. start_s (P,): first bin centre of each point;
-    n_bins (P,); e_v_per_m, b_t (P, max_bins, 3), zero past n_bins[p]."""
+    n_bins (P,); e_v_per_m, b_t (P, max_bins, 3), zero past n_bins[p]; spectra: a
+    SpectrumAccumulator when spectra were asked."""
 
     group: object
+    step_s: float
     start_s: np.ndarray
     n_bins: np.ndarray
     e_v_per_m: np.ndarray
     b_t: np.ndarray
+    spectra: object = None
 
     def times(self, point: int) -> np.ndarray:
         return self.start_s[point] + self.step_s * np.arange(self.n_bins[point])
-
-    step_s: float = 0.0
 
 
 # ---------------------------------------------------------------------------- window
@@ -147,7 +157,8 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
     targets = far[0] if far is not None else group.points_m
     state = motion.evaluate(t)
     limits = np.empty(t.size)
-    sampling.source_step_limits(*state, targets, far is not None, settings.step_s,
+    resolution = settings.resolution_s()
+    sampling.source_step_limits(*state, targets, far is not None, resolution,
                                 SAMPLES_PER_BIN, ANGLE_TOLERANCE, limits)
     for _ in range(MAX_REFINEMENTS):
         if far is None:
@@ -172,7 +183,7 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
         new_t = starts + widths * rank
         new_state = motion.evaluate(new_t)
         new_limits = np.empty(new_t.size)
-        sampling.source_step_limits(*new_state, targets, far is not None, settings.step_s,
+        sampling.source_step_limits(*new_state, targets, far is not None, resolution,
                                     SAMPLES_PER_BIN, ANGLE_TOLERANCE, new_limits)
         order = np.argsort(np.concatenate([t, new_t]), kind="stable")
         t = np.concatenate([t, new_t])[order]
@@ -187,7 +198,7 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
 class FieldAccumulator:
     """Bin integrals of one group, to which chunks of particles are added."""
 
-    def __init__(self, group, start_s, n_bins, settings: FieldSettings):
+    def __init__(self, group, start_s, n_bins, settings: FieldSettings, spectrum=None):
         self.group = group
         self.settings = settings
         self.start_s = start_s
@@ -200,6 +211,10 @@ class FieldAccumulator:
             self.far = (directions, distance, group.origin_m)
         self._pending = []
         self._pending_samples = 0
+        self.spectra = None
+        if spectrum is not None:
+            stop_s = start_s + (n_bins - 1) * settings.step_s
+            self.spectra = SpectrumAccumulator(group, start_s, stop_s, spectrum, self.far)
 
     def add(self, motion: Motion) -> None:
         edge_lo = self.edge0
@@ -208,6 +223,8 @@ class FieldAccumulator:
                            self.settings.extend)
         t, state = source_samples(motion, self.group, span, self.settings, self.far)
         scale = motion.track.charge_c * motion.track.weight
+        if self.spectra is not None:
+            self.spectra.add(t, state, motion.track.charge_c, motion.track.weight)
         self._pending.append((t, state, scale))
         self._pending_samples += t.size
         if self._pending_samples >= SAMPLES_PER_KERNEL_CALL:
@@ -238,7 +255,7 @@ class FieldAccumulator:
         step = self.settings.step_s
         e = self.integrals[:, :, :3] * (COULOMB / step)
         b = self.integrals[:, :, 3:] * (COULOMB / (C * step))
-        return GroupFields(self.group, self.start_s, self.n_bins, e, b, step_s=step)
+        return GroupFields(self.group, step, self.start_s, self.n_bins, e, b, self.spectra)
 
 
 def track_ends(tracks):
@@ -250,9 +267,11 @@ def track_ends(tracks):
     return t_first, r_first, t_last, r_last
 
 
-def compute_fields(tracks, groups, settings: FieldSettings, *, ends=None, progress=None):
+def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, ends=None,
+                   progress=None):
     """Bin-averaged E, B of every group (list of GroupFields), coherently summed over
-    the tracks. `tracks` is an iterable of Track; `ends` (from `track_ends`) lets a
+    the tracks, and their spectra when `spectrum` (SpectrumSettings) is given.
+    `tracks` is an iterable of Track; `ends` (from `track_ends`) lets a
     streaming caller give the window without a second pass; progress(n) is called after
     each particle."""
     if ends is None:
@@ -264,7 +283,7 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, ends=None, progre
     accumulators = []
     for group in groups:
         start, n_bins = time_window(group, ends, settings)
-        accumulators.append(FieldAccumulator(group, start, n_bins, settings))
+        accumulators.append(FieldAccumulator(group, start, n_bins, settings, spectrum))
     for track in tracks:
         motion = Motion(track, degree=settings.degree, extend=settings.extend,
                         smoothing_m=settings.smoothing_m)

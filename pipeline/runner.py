@@ -17,6 +17,7 @@ from .observers import build_group
 from .outputs import SAFETY_NOTE, check_target, sha256, write_results
 from .registry import get_registry
 from .signals import Signals
+from .spectra import SpectrumSettings, frequency_list
 from .tracks import open_tracks
 
 FIELD_COLUMNS = ["Ex", "Ey", "Ez", "Bx", "By", "Bz"]
@@ -37,11 +38,20 @@ def fields_table(results) -> pd.DataFrame:
     return pd.concat(frames, ignore_index=True)
 
 
-def settings_from(config) -> FieldSettings:
-    return FieldSettings(step_s=config.time.step_s, start_s=config.time.start_s,
-                         stop_s=config.time.stop_s, align=config.time.align,
-                         far_field=config.far_field, degree=config.motion.degree,
-                         extend=config.motion.extend, smoothing_m=config.motion.smoothing_m)
+def settings_from(config):
+    """(FieldSettings, SpectrumSettings or None) of a RunConfig."""
+    spectrum = None
+    if config.spectrum is not None:
+        s = config.spectrum
+        spectrum = SpectrumSettings(frequency_list(s.start_hz, s.stop_hz, s.count, s.spacing),
+                                    coherent=s.coherent, taper=s.taper)
+    fields = FieldSettings(step_s=config.time.step_s, start_s=config.time.start_s,
+                           stop_s=config.time.stop_s, align=config.time.align,
+                           far_field=config.far_field, degree=config.motion.degree,
+                           extend=config.motion.extend, smoothing_m=config.motion.smoothing_m,
+                           max_frequency_hz=None if spectrum is None
+                           else float(spectrum.frequencies_hz.max()))
+    return fields, spectrum
 
 
 def run(path, *, overwrite: bool = False, write: bool = True, workers: int | None = None,
@@ -64,12 +74,16 @@ def run(path, *, overwrite: bool = False, write: bool = True, workers: int | Non
     tracks = open_tracks(config.tracks.path, **options)
     timings["read_s"] = time.perf_counter() - started
     ends = track_ends(tracks)
-    settings = settings_from(config)
+    settings, spectrum = settings_from(config)
     t0 = time.perf_counter()
-    results = compute_fields(tracks, groups, settings, ends=ends, progress=progress)
-    timings["fields_s"] = time.perf_counter() - t0
+    results = compute_fields(tracks, groups, settings, spectrum=spectrum, ends=ends,
+                             progress=progress)
+    timings["compute_s"] = time.perf_counter() - t0
     observers = pd.concat([group.table() for group in groups], ignore_index=True)
-    signals = Signals(observers=observers, fields=fields_table(results))
+    spectra = None
+    if spectrum is not None:
+        spectra = pd.concat([r.spectra.table() for r in results], ignore_index=True)
+    signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra)
     warnings = [f"plugin '{b.name}' ({b.distribution}) could not be loaded: {b.error}"
                 for b in registry.broken]
     timings["total_s"] = time.perf_counter() - started
