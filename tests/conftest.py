@@ -6,8 +6,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from lagfield.registry import build_registry
 from scipy import constants
+
+from lagfield.registry import build_registry
 
 ELECTRON_CHARGE_C = -constants.e  # CODATA 2018, exact: -1.602176634e-19 C
 

@@ -9,8 +9,9 @@ import math
 import numpy as np
 import pandas as pd
 import pytest
-from lagfield.diagnose import format_report, inspect_tracks
 from scipy import constants
+
+from lagfield.diagnose import format_report, inspect_tracks
 
 C = constants.c
 

@@ -11,11 +11,12 @@ import sys
 import numpy as np
 import pandas as pd
 import pytest
+from scipy import constants
+
 from lagfield.errors import PluginError, TrackError
 from lagfield.registry import build_registry
 from lagfield.signals import Signals
 from lagfield.tracks import read_tracks
-from scipy import constants
 
 ELECTRON_CHARGE_C = -constants.e  # CODATA 2018, exact: -1.602176634e-19 C
 FAKE_PLUGINS = pathlib.Path(__file__).parent / "fake_plugins"

@@ -4,16 +4,17 @@ from __future__ import annotations
 
 import tempfile
 
-import lagfield
 import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 import pytest
+from scipy import constants
+
+import lagfield
 from lagfield.errors import TrackError
 from lagfield.registry import build_registry
 from lagfield.tracks import iter_tracks, open_tracks, read_tracks
-from scipy import constants
 
 ELECTRON_CHARGE_C = -constants.e  # CODATA 2018, exact: -1.602176634e-19 C
 

@@ -15,8 +15,9 @@ import time
 
 import numba
 import numpy as np
-from lagfield.kernels import deposit
 from scipy import constants
+
+from lagfield.kernels import deposit
 
 
 def workload(n_particles: int, n_samples: int, n_points: int, n_bins: int):

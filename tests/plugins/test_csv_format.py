@@ -5,10 +5,11 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from scipy import constants
+
 from lagfield.plugins import csv_format
 from lagfield.signals import Signals
 from lagfield.tracks import read_tracks
-from scipy import constants
 
 ELECTRON_CHARGE_C = -constants.e  # CODATA 2018, exact: -1.602176634e-19 C
 

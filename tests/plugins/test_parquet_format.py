@@ -6,10 +6,11 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
+from scipy import constants
+
 from lagfield.plugins import parquet_format
 from lagfield.signals import Signals
 from lagfield.tracks import iter_tracks, read_tracks
-from scipy import constants
 
 ELECTRON_CHARGE_C = -constants.e  # CODATA 2018, exact: -1.602176634e-19 C
 
