@@ -23,7 +23,8 @@ def _imported_after(code: str) -> list[str]:
     probe = f"{code}\nimport sys\nprint(','.join(m for m in {HEAVY!r} if m in sys.modules))"
     result = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True,
                             check=True)
-    return [m for m in result.stdout.strip().split(",") if m]
+    last_line = result.stdout.strip().splitlines()[-1] if result.stdout.strip() else ""
+    return [m for m in last_line.split(",") if m and m in HEAVY]
 
 
 def test_import_lagfield_is_light():

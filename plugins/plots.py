@@ -1,0 +1,583 @@
+"""Plot export: PNG figures of each observer group's waveforms, energy-fluence maps (planes
+and spheres) and, when spectra were computed, spectral fluence and band-fluence maps.
+
+matplotlib is imported only inside `PlotExporter.write`, through its object-oriented
+Figure API with the Agg canvas, so importing this module (or listing plugins) stays light.
+The helpers that turn tables into grids need only NumPy and the pandas tables they get.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import difflib
+import math
+import pathlib
+import re
+from typing import TYPE_CHECKING
+
+import numpy as np
+from scipy import constants
+
+import lagfield
+from lagfield.errors import ConfigError
+from lagfield.units import to_si
+
+if TYPE_CHECKING:  # pandas loads with the tables it is given, not with this module
+    import pandas as pd
+
+OPTION_DEFAULTS = {"dpi": 120, "max_curves": 6, "band": None}
+WHERE = "[plugins.plots]"
+TIME_UNITS = (("s", 1.0), ("ms", 1e-3), ("µs", 1e-6), ("ns", 1e-9), ("ps", 1e-12),
+              ("fs", 1e-15), ("as", 1e-18))
+DYNAMIC_RANGE = 1e-15  # spectra: lowest value shown, relative to the peak (common practice)
+FREQUENCY_UNITS = (("PHz", 1e15), ("THz", 1e12), ("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3),
+                   ("Hz", 1.0))
+
+
+# ---------------------------------------------------------------------------------------
+# Options
+
+
+@dataclasses.dataclass(frozen=True)
+class PlotOptions:
+    dpi: float
+    max_curves: int
+    band_hz: tuple[float, float] | None  # None: the whole computed band
+
+
+def parse_options(options: dict) -> PlotOptions:
+    """The [plugins.plots] table, checked; a ConfigError names the key that is wrong."""
+    options = dict(options or {})
+    for key in options:
+        if key not in OPTION_DEFAULTS:
+            close = difflib.get_close_matches(key, OPTION_DEFAULTS, n=1)
+            hint = f" (did you mean '{close[0]}'?)" if close else ""
+            raise ConfigError(f"{WHERE}: unknown key '{key}'{hint}; known keys: "
+                              f"{', '.join(OPTION_DEFAULTS)}")
+    merged = {**OPTION_DEFAULTS, **options}
+    dpi = merged["dpi"]
+    if isinstance(dpi, bool) or not isinstance(dpi, int | float) or not 10 <= dpi <= 2000:
+        raise ConfigError(f"{WHERE} dpi: expected a number from 10 to 2000, got {dpi!r}")
+    max_curves = merged["max_curves"]
+    if isinstance(max_curves, bool) or not isinstance(max_curves, int) or max_curves < 1:
+        raise ConfigError(f"{WHERE} max_curves: expected a whole number of at least 1, "
+                          f"got {max_curves!r}")
+    band = merged["band"]
+    if band is not None:
+        if not isinstance(band, list | tuple) or len(band) != 2:
+            raise ConfigError(f"{WHERE} band: expected [f_lo, f_hi] (Hz, or strings such "
+                              f"as \"1 THz\"), got {band!r}")
+        f_lo, f_hi = (to_si(value, "frequency", where=f"{WHERE} band[{i}]")
+                      for i, value in enumerate(band))
+        if not (math.isfinite(f_lo) and math.isfinite(f_hi) and 0.0 <= f_lo < f_hi):
+            raise ConfigError(f"{WHERE} band: expected 0 <= f_lo < f_hi, got "
+                              f"[{f_lo:g}, {f_hi:g}] Hz")
+        band = (f_lo, f_hi)
+    return PlotOptions(dpi=float(dpi), max_curves=max_curves, band_hz=band)
+
+
+# ---------------------------------------------------------------------------------------
+# Geometry: recovering the plane or sphere grid from the observers table
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class GridLayout:
+    """A plane or sphere group as a rectangular grid.
+
+    points: (n_a, n_b) point numbers. Plane: a, b are the u and v coordinates (m) of the
+    grid lines about the plane's center, u_hat, v_hat its unit vectors (None along an axis
+    of one point). Sphere: a = theta, b = phi (rad), radius_m from center_m.
+    """
+
+    kind: str
+    points: np.ndarray
+    a: np.ndarray
+    b: np.ndarray
+    center_m: np.ndarray
+    u_hat: np.ndarray | None = None
+    v_hat: np.ndarray | None = None
+    radius_m: float | None = None
+
+
+def _positions(observers_of_group: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    table = observers_of_group.sort_values("point")
+    return table["point"].to_numpy(), table[["x", "y", "z"]].to_numpy(dtype=float)
+
+
+def _divisor_pairs(n: int):
+    for n_v in range(2, n // 2 + 1):
+        if n % n_v == 0 and n // n_v >= 2:
+            yield n // n_v, n_v
+
+
+def _plane_layout(points, positions, shape=None) -> GridLayout | None:
+    """The grid point = i_u·n_v + i_v that the positions follow, or None."""
+    n = len(points)
+    candidates = [shape] if shape is not None else list(_divisor_pairs(n))
+    scale = float(np.max(np.abs(positions))) if n else 0.0
+    for n_u, n_v in candidates:
+        if n_u * n_v != n or n < 2:
+            continue
+        du = positions[n_v] - positions[0] if n_u > 1 else np.zeros(3)
+        dv = positions[1] - positions[0] if n_v > 1 else np.zeros(3)
+        step_u, step_v = float(np.linalg.norm(du)), float(np.linalg.norm(dv))
+        if (n_u > 1 and step_u == 0.0) or (n_v > 1 and step_v == 0.0):
+            continue
+        if n_u > 1 and n_v > 1 and np.linalg.norm(np.cross(du, dv)) < 1e-9 * step_u * step_v:
+            continue
+        i_u, i_v = np.divmod(np.arange(n), n_v)
+        predicted = positions[0] + i_u[:, None] * du + i_v[:, None] * dv
+        tolerance = 1e-6 * min(s for s in (step_u, step_v) if s > 0) + 1e-12 * scale
+        if np.max(np.abs(predicted - positions)) > tolerance:
+            continue
+        return GridLayout(
+            kind="plane", points=points.reshape(n_u, n_v),
+            a=(np.arange(n_u) - (n_u - 1) / 2) * step_u,
+            b=(np.arange(n_v) - (n_v - 1) / 2) * step_v,
+            center_m=positions.mean(axis=0),
+            u_hat=du / step_u if n_u > 1 else None, v_hat=dv / step_v if n_v > 1 else None)
+    return None
+
+
+def _sphere_layout(points, positions, theta, phi) -> GridLayout | None:
+    """The theta-major grid point = i_theta·n_phi + i_phi, with the center and radius
+    fitted to position = center + R·direction(theta, phi); None if not a grid."""
+    n = len(points)
+    n_phi = len(np.unique(phi))
+    if n % n_phi:
+        return None
+    grid_theta, grid_phi = theta.reshape(-1, n_phi), phi.reshape(-1, n_phi)
+    if not (np.all(grid_theta == grid_theta[:, :1]) and np.all(grid_phi == grid_phi[:1])):
+        return None
+    directions = np.stack([np.sin(theta) * np.cos(phi), np.sin(theta) * np.sin(phi),
+                           np.cos(theta)], axis=1)
+    # unknowns (cx, cy, cz, R): position_i = c + R d_i
+    matrix = np.zeros((3 * n, 4))
+    matrix[:, :3] = np.tile(np.eye(3), (n, 1))
+    matrix[:, 3] = directions.ravel()
+    solution, _, rank, _ = np.linalg.lstsq(matrix, positions.ravel(), rcond=None)
+    if rank == 4 and solution[3] > 0:
+        center, radius = solution[:3], float(solution[3])
+    else:  # every point in one direction: seen from the coordinate origin
+        center, radius = np.zeros(3), float(np.mean(np.linalg.norm(positions, axis=1)))
+    return GridLayout(kind="sphere", points=points.reshape(-1, n_phi), a=grid_theta[:, 0],
+                      b=grid_phi[0], center_m=center, radius_m=radius)
+
+
+def _declared_plane_shape(summary: dict | None, name: str):
+    """(n_u, n_v) of a plane group as the run file declared it, when the summary has it."""
+    run = (summary or {}).get("run") or {}
+    for entry in run.get("observers", []) if isinstance(run, dict) else []:
+        if isinstance(entry, dict) and entry.get("name") == name and "plane" in entry:
+            shape = (entry["plane"] or {}).get("shape")
+            if isinstance(shape, list | tuple) and len(shape) == 2:
+                return int(shape[0]), int(shape[1])
+    return None
+
+
+def grid_layout(observers_of_group: pd.DataFrame, summary: dict | None = None
+                ) -> GridLayout | None:
+    """The plane or sphere grid of one group's observers rows; None for a list of points.
+
+    A sphere is recognised by its theta and phi columns; a plane by positions that follow
+    point = i_u·n_v + i_v on two non-parallel steps (n_u, n_v >= 2), or by the shape the
+    run file declared (from the run summary, when given).
+    """
+    points, positions = _positions(observers_of_group)
+    table = observers_of_group.sort_values("point")
+    if {"theta", "phi"} <= set(table.columns) and table[["theta", "phi"]].notna().all().all():
+        return _sphere_layout(points, positions, table["theta"].to_numpy(dtype=float),
+                              table["phi"].to_numpy(dtype=float))
+    name = str(table["observer"].iloc[0]) if len(table) else ""
+    return _plane_layout(points, positions, _declared_plane_shape(summary, name))
+
+
+# ---------------------------------------------------------------------------------------
+# Quantities plotted
+
+
+def time_step_s(fields_of_group: pd.DataFrame, summary: dict | None = None) -> float | None:
+    """The sampling step of a group's fields (the smallest spacing of any point's times);
+    with one sample per point, the run file's [time] step; None if neither is known."""
+    steps = []
+    for _, times in fields_of_group.groupby("point")["t"]:
+        diffs = np.diff(np.sort(times.to_numpy(dtype=float)))
+        diffs = diffs[diffs > 0]
+        if diffs.size:
+            steps.append(float(diffs.min()))
+    if steps:
+        return min(steps)
+    step = (((summary or {}).get("run") or {}).get("time") or {}).get("step")
+    if step is None:
+        return None
+    return to_si(step, "time", where="[time] step")
+
+
+def point_fluence(fields_of_group: pd.DataFrame, step_s: float | None = None) -> pd.Series:
+    """Energy fluence ε0 c ∫|E|² dt (J/m²) of each point (a Series indexed by point).
+
+    Each sample is the field averaged over one step (SPEC), so the integral is the sum of
+    |E|² times the step.
+    """
+    if step_s is None:
+        step_s = time_step_s(fields_of_group)
+    if step_s is None:
+        raise ValueError("the time step is unknown (one sample per point)")
+    e_squared = (fields_of_group["Ex"] ** 2 + fields_of_group["Ey"] ** 2
+                 + fields_of_group["Ez"] ** 2)
+    summed = e_squared.groupby(fields_of_group["point"]).sum()
+    return constants.epsilon_0 * constants.c * step_s * summed
+
+
+def band_fluence(spectra_of_group: pd.DataFrame, band_hz, column: str = "fluence"
+                 ) -> pd.Series:
+    """∫ column df over the computed frequencies within band_hz = (f_lo, f_hi), by point
+    (trapezoid rule on the frequency list; J/m² for fluence, J/sr for dW_df_dOmega)."""
+    from scipy import integrate
+
+    f_lo, f_hi = band_hz
+    inside = spectra_of_group[(spectra_of_group["f"] >= f_lo) & (spectra_of_group["f"] <= f_hi)]
+    out = {}
+    for point, rows in inside.groupby("point"):
+        rows = rows.sort_values("f")
+        out[point] = float(integrate.trapezoid(rows[column].to_numpy(dtype=float),
+                                        rows["f"].to_numpy(dtype=float)))
+    import pandas as pd
+
+    return pd.Series(out, dtype=float)
+
+
+def values_on_grid(layout: GridLayout, values_by_point: pd.Series) -> np.ndarray:
+    """(n_a, n_b) array of per-point values (NaN where a point has none)."""
+    return values_by_point.reindex(layout.points.ravel()).to_numpy(dtype=float).reshape(
+        layout.points.shape)
+
+
+def fluence_grid(observers_of_group: pd.DataFrame, fields_of_group: pd.DataFrame,
+                 step_s: float | None = None):
+    """(a, b, fluence) of a plane or sphere group: plane: u_mm (n_u,), v_mm (n_v,);
+    sphere: theta_rad (n_theta,), phi_rad (n_phi,); fluence (n_a, n_b) in J/m²."""
+    layout = grid_layout(observers_of_group)
+    if layout is None:
+        raise ValueError("these observers are not a plane or sphere grid")
+    values = values_on_grid(layout, point_fluence(fields_of_group, step_s))
+    if layout.kind == "plane":
+        return layout.a * 1e3, layout.b * 1e3, values
+    return layout.a, layout.b, values
+
+
+# ---------------------------------------------------------------------------------------
+# Labels and units
+
+
+def pick_unit(scale: float, units) -> tuple[str, float]:
+    """The largest unit from `units` (largest first) that `scale` is at least one of."""
+    scale = abs(scale)
+    for name, factor in units:
+        if scale >= factor * (1 - 1e-9):
+            return name, factor
+    return units[-1]
+
+
+def _format_quantity(value: float, units) -> str:
+    name, factor = pick_unit(value, units) if value else units[-1]
+    return f"{value / factor:.6g} {name}"
+
+
+def time_scale(times_s: np.ndarray) -> tuple[float, float, str]:
+    """(reference_s, unit_s, axis label) for plotting times as (t - reference) / unit in a
+    unit chosen from the span; the reference is non-zero only for a window far from t = 0."""
+    t_min, t_max = float(np.min(times_s)), float(np.max(times_s))
+    span = t_max - t_min
+    unit, factor = pick_unit(span if span > 0 else (abs(t_min) or 1e-9), TIME_UNITS)
+    reference = 0.0
+    if span > 0 and abs(t_min) > 10 * span:
+        decade = 10.0 ** math.floor(math.log10(span))
+        reference = math.floor(t_min / decade + 1e-9) * decade
+    label = "time t" if reference == 0.0 else f"t − {_format_quantity(reference, TIME_UNITS)}"
+    return reference, factor, f"{label} ({unit})"
+
+
+def _angle_unit(angles_rad: np.ndarray) -> tuple[str, float]:
+    return ("mrad", 1e-3) if np.max(np.abs(angles_rad)) < 0.2 else ("°", math.pi / 180)
+
+
+def _vector(v) -> str:
+    v = np.asarray(v, dtype=float)
+    tiny = 1e-9 * float(np.max(np.abs(v))) if v.size else 0.0
+    return "(" + ", ".join(f"{0.0 if abs(x) <= tiny else x:.4g}" for x in v) + ")"
+
+
+def point_label(observers_of_group: pd.DataFrame, point: int,
+                layout: GridLayout | None) -> str:
+    row = observers_of_group[observers_of_group["point"] == point].iloc[0]
+    if layout is not None and layout.kind == "sphere":
+        t_unit, t_factor = _angle_unit(layout.a)
+        return (f"point {point}: θ = {row['theta'] / t_factor:.3g} {t_unit}, "
+                f"φ = {math.degrees(row['phi']):.3g}°")
+    if layout is not None and layout.kind == "plane":
+        i_a, i_b = np.argwhere(layout.points == point)[0]
+        return (f"point {point}: u = {layout.a[i_a] * 1e3:.3g} mm, "
+                f"v = {layout.b[i_b] * 1e3:.3g} mm")
+    xyz = row[["x", "y", "z"]].to_numpy(dtype=float)
+    unit, factor = ("m", 1.0) if np.max(np.abs(xyz)) >= 1.0 else ("mm", 1e-3)
+    return f"point {point}: {_vector(xyz / factor)} {unit}"
+
+
+def representative_points(points: np.ndarray, max_curves: int) -> list[int]:
+    """Up to max_curves point numbers spread evenly over the group, first and last kept."""
+    points = np.sort(np.asarray(points))
+    if len(points) <= max_curves:
+        return [int(p) for p in points]
+    picks = np.unique(np.round(np.linspace(0, len(points) - 1, max_curves)).astype(int))
+    return [int(points[i]) for i in picks]
+
+
+def _edges(centers: np.ndarray) -> np.ndarray:
+    """Cell edges around grid centers (a cell of one point gets a width of its own)."""
+    centers = np.asarray(centers, dtype=float)
+    if centers.size == 1:
+        half = 0.5 * (abs(centers[0]) or 1.0)
+        return np.array([centers[0] - half, centers[0] + half])
+    middle = 0.5 * (centers[1:] + centers[:-1])
+    return np.concatenate([[2 * centers[0] - middle[0]], middle,
+                           [2 * centers[-1] - middle[-1]]])
+
+
+def safe_stem(name: str) -> str:
+    """A group name made safe as a file-name stem."""
+    return re.sub(r"[^A-Za-z0-9._-]+", "_", name).strip("._") or "group"
+
+
+# ---------------------------------------------------------------------------------------
+# Figures (matplotlib imported here only)
+
+
+def _new_figure(width_in: float, height_in: float):
+    from matplotlib.figure import Figure
+
+    return Figure(figsize=(width_in, height_in), layout="constrained")
+
+
+def _save(figure, directory: pathlib.Path, file_name: str, dpi: float) -> str:
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    FigureCanvasAgg(figure)
+    figure.savefig(directory / file_name, dpi=dpi, format="png")
+    return file_name
+
+
+def _sci(axis, which="y"):
+    axis.ticklabel_format(axis=which, style="sci", scilimits=(-3, 4), useMathText=True)
+
+
+def plot_waveforms(name, observers_of_group, fields_of_group, layout, picks):
+    figure = _new_figure(8.0, 9.0)
+    axes = figure.subplots(4, 1, sharex=True)
+    chosen = fields_of_group[fields_of_group["point"].isin(picks)]
+    reference_s, unit_s, time_label = time_scale(chosen["t"].to_numpy(dtype=float))
+    for point in picks:
+        rows = chosen[chosen["point"] == point].sort_values("t")
+        t = rows["t"].to_numpy(dtype=float)
+        scaled = (t - reference_s) / unit_s
+        e = rows[["Ex", "Ey", "Ez"]].to_numpy(dtype=float)
+        series = (e[:, 0], e[:, 1], e[:, 2], np.sqrt(np.sum(e * e, axis=1)))
+        marker = "o" if len(t) < 3 else None
+        label = point_label(observers_of_group, point, layout)
+        for ax, values in zip(axes, series, strict=True):
+            ax.plot(scaled, values, marker=marker, linewidth=1.0, label=label)
+    for ax, quantity in zip(axes, ("E_x", "E_y", "E_z", "|E|"), strict=True):
+        ax.set_ylabel(f"${quantity}$ (V/m)" if quantity != "|E|" else "|E| (V/m)")
+        ax.grid(True, alpha=0.3)
+        _sci(ax)
+        ax.ticklabel_format(axis="x", useOffset=False)
+    axes[-1].set_xlabel(time_label)
+    shown = len(picks)
+    total = fields_of_group["point"].nunique()
+    note = f" ({shown} of {total} points)" if shown < total else ""
+    figure.suptitle(f"{name}: electric field waveforms{note}")
+    handles, labels = axes[0].get_legend_handles_labels()
+    figure.legend(handles, labels, loc="outside lower center", ncols=2, fontsize="small")
+    return figure
+
+
+def _map_axes(ax, layout: GridLayout, values: np.ndarray, label: str, figure):
+    """Draw one map of per-point values on the layout's own coordinates."""
+    if layout.kind == "plane":
+        x, y = layout.a * 1e3, layout.b * 1e3
+        y_edges = _edges(y)
+        ax.set_xlabel("u (mm)")
+        ax.set_ylabel("v (mm)")
+    else:
+        t_unit, t_factor = _angle_unit(layout.a)
+        x = np.degrees(layout.b)
+        y_edges = np.clip(_edges(layout.a), 0.0, math.pi) / t_factor  # θ stays in [0, π]
+        ax.set_xlabel("azimuth φ (°)")
+        ax.set_ylabel(f"polar angle θ ({t_unit})")
+    finite = values[np.isfinite(values)]
+    top = float(finite.max()) if finite.size and finite.max() > 0 else 1.0
+    rows_along_y = values.T if layout.kind == "plane" else values  # C[i_y, i_x]
+    mesh = ax.pcolormesh(_edges(x), y_edges, rows_along_y, shading="flat", cmap="viridis",
+                         vmin=0.0, vmax=top)
+    if layout.kind == "sphere":  # ticks on the grid's own angles when there are few
+        if len(x) <= 12:
+            ax.set_xticks(x, [f"{value:.4g}" for value in x])
+        if len(layout.a) <= 12:
+            ax.set_yticks(layout.a / t_factor, [f"{v / t_factor:.4g}" for v in layout.a])
+    if layout.kind == "plane" and len(x) > 1 and len(y_edges) > 2:
+        ax.set_aspect("equal")
+    bar = figure.colorbar(mesh, ax=ax)
+    bar.set_label(label)
+    bar.formatter.set_useMathText(True)
+    bar.formatter.set_powerlimits((-3, 4))
+    bar.update_ticks()
+
+
+def _geometry_note(layout: GridLayout) -> str:
+    if layout.kind == "plane":
+        parts = [f"center {_vector(layout.center_m)} m"]
+        if layout.u_hat is not None:
+            parts.append(f"u = {_vector(layout.u_hat)}")
+        if layout.v_hat is not None:
+            parts.append(f"v = {_vector(layout.v_hat)}")
+        return ", ".join(parts)
+    return f"sphere of radius {layout.radius_m:.4g} m about {_vector(layout.center_m)} m"
+
+
+def plot_map(name, layout: GridLayout, values: np.ndarray, what: str,
+             per_sr: np.ndarray | None = None):
+    """A plane map, or a sphere map with its per-solid-angle twin beside it."""
+    panels = 1 if per_sr is None else 2
+    figure = _new_figure(6.0 * panels + 0.5, 5.2)
+    axes = np.atleast_1d(figure.subplots(1, panels))
+    _map_axes(axes[0], layout, values, f"{what} (J/m²)", figure)
+    if per_sr is not None:
+        _map_axes(axes[1], layout, per_sr, "energy per solid angle (J/sr)", figure)
+        axes[0].set_title(what)
+        axes[1].set_title("R² × " + what)
+    figure.suptitle(f"{name}: {what}\n{_geometry_note(layout)}", fontsize="medium")
+    return figure
+
+
+def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks):
+    figure = _new_figure(8.0, 5.5)
+    ax = figure.subplots()
+    f_max = float(spectra_of_group["f"].max())
+    f_unit, f_factor = pick_unit(f_max, FREQUENCY_UNITS)
+    positive_f = bool((spectra_of_group["f"] > 0).all())
+    any_positive, peak, floor = False, 0.0, math.inf
+    for point in picks:
+        rows = spectra_of_group[spectra_of_group["point"] == point].sort_values("f")
+        if rows.empty:
+            continue
+        values = rows["fluence"].to_numpy(dtype=float)
+        positive = values[values > 0]
+        if positive.size:
+            any_positive = True
+            peak, floor = max(peak, float(positive.max())), min(floor, float(positive.min()))
+        ax.plot(rows["f"].to_numpy(dtype=float) / f_factor, values,
+                marker="o" if len(rows) < 3 else None, linewidth=1.0,
+                label=point_label(observers_of_group, point, layout))
+    if positive_f:
+        ax.set_xscale("log")
+    if any_positive:
+        ax.set_yscale("log")
+        ax.set_ylim(bottom=max(floor, peak * DYNAMIC_RANGE) / 2)
+    else:
+        _sci(ax)
+    ax.set_xlabel(f"frequency f ({f_unit})")
+    ax.set_ylabel("spectral fluence F (J/(m²·Hz))")
+    ax.grid(True, which="both", alpha=0.3)
+    if layout is not None and layout.kind == "sphere":
+        r2 = layout.radius_m ** 2
+        right = ax.secondary_yaxis("right", functions=(lambda x: x * r2, lambda x: x / r2))
+        right.set_ylabel("d²W/(df dΩ) = R² F (J/(Hz·sr))")
+    ax.legend(fontsize="small")
+    total = spectra_of_group["point"].nunique()
+    note = f" ({len(picks)} of {total} points)" if len(picks) < total else ""
+    ax.set_title(f"{name}: spectral fluence{note}")
+    return figure
+
+
+# ---------------------------------------------------------------------------------------
+# The exporter
+
+
+class PlotExporter:
+    """PNG figures of every observer group."""
+
+    name = "plots"
+    description = ("PNG figures per observer group: field waveforms, fluence maps, spectra "
+                   "and band maps (matplotlib)")
+    requires = ("matplotlib",)
+
+    def write(self, result, directory, options) -> list[str]:
+        settings = parse_options(options)
+        directory = pathlib.Path(directory)
+        summary = getattr(result, "summary", None) or {}
+        plans = [self._plan(name, result, summary, settings)
+                 for name in result.observers["observer"].unique()]
+        written = []
+        for plan in plans:  # every option and band was checked before the first file
+            written += self._draw(plan, directory, settings)
+        return written
+
+    def _plan(self, name, result, summary, settings) -> dict:
+        observers = result.observers[result.observers["observer"] == name]
+        fields = result.fields[result.fields["observer"] == name]
+        spectra = None
+        if result.spectra is not None:
+            spectra = result.spectra[result.spectra["observer"] == name]
+            spectra = spectra if len(spectra) else None
+        layout = grid_layout(observers, summary) if len(observers) > 1 else None
+        band = None
+        if spectra is not None:
+            f = np.unique(spectra["f"].to_numpy(dtype=float))
+            band = settings.band_hz or (float(f.min()), float(f.max()))
+            inside = int(np.count_nonzero((f >= band[0]) & (f <= band[1])))
+            if settings.band_hz is not None and inside < 2:
+                raise ConfigError(
+                    f"{WHERE} band: [{band[0]:g}, {band[1]:g}] Hz holds {inside} of the "
+                    f"frequencies computed for observer group '{name}' "
+                    f"({f.min():g} to {f.max():g} Hz, {f.size} values); at least 2 are needed")
+            if inside < 2:
+                band = None  # a single frequency: nothing to integrate over
+        return dict(name=name, observers=observers, fields=fields, spectra=spectra,
+                    layout=layout, band=band, step_s=time_step_s(fields, summary))
+
+    def _draw(self, plan, directory, settings) -> list[str]:
+        name, layout = plan["name"], plan["layout"]
+        observers, fields, spectra = plan["observers"], plan["fields"], plan["spectra"]
+        stem = safe_stem(str(name))
+        picks = representative_points(observers["point"].to_numpy(), settings.max_curves)
+        written = []
+        if len(fields):
+            present = [p for p in picks if p in set(fields["point"])]
+            figure = plot_waveforms(name, observers, fields, layout, present)
+            written.append(_save(figure, directory, f"{stem}_waveforms.png", settings.dpi))
+        if layout is not None and len(fields) and plan["step_s"] is not None:
+            values = values_on_grid(layout, point_fluence(fields, plan["step_s"]))
+            per_sr = values * layout.radius_m ** 2 if layout.kind == "sphere" else None
+            figure = plot_map(name, layout, values, "energy fluence ε₀c∫|E|²dt", per_sr)
+            written.append(_save(figure, directory, f"{stem}_fluence_map.png", settings.dpi))
+        if spectra is not None:
+            figure = plot_spectra(name, observers, spectra, layout, picks)
+            written.append(_save(figure, directory, f"{stem}_spectrum.png", settings.dpi))
+        if spectra is not None and layout is not None and plan["band"] is not None:
+            band = plan["band"]
+            values = values_on_grid(layout, band_fluence(spectra, band))
+            per_sr = None
+            if layout.kind == "sphere":
+                per_sr = (values_on_grid(layout, band_fluence(spectra, band, "dW_df_dOmega"))
+                          if "dW_df_dOmega" in spectra.columns
+                          else values * layout.radius_m ** 2)
+            what = (f"fluence in {_format_quantity(band[0], FREQUENCY_UNITS)} – "
+                    f"{_format_quantity(band[1], FREQUENCY_UNITS)}")
+            figure = plot_map(name, layout, values, what, per_sr)
+            written.append(_save(figure, directory, f"{stem}_band_map.png", settings.dpi))
+        return written
+
+
+@lagfield.hookimpl
+def lagfield_register_exporters():
+    return [PlotExporter()]
