@@ -258,32 +258,43 @@ class FieldAccumulator:
         return GroupFields(self.group, step, self.start_s, self.n_bins, e, b, self.spectra)
 
 
-def track_ends(tracks):
-    """(t_first, r_first, t_last, r_last) of every track, for the default window."""
-    t_first = np.array([tr.t_s[0] for tr in tracks])
-    t_last = np.array([tr.t_s[-1] for tr in tracks])
-    r_first = np.array([tr.position_m[0] for tr in tracks]).reshape(-1, 3)
-    r_last = np.array([tr.position_m[-1] for tr in tracks]).reshape(-1, 3)
-    return t_first, r_first, t_last, r_last
+def track_ends(tracks, *, with_ids: bool = False):
+    """(t_first, r_first, t_last, r_last) of every track, for the default window, in one
+    pass over `tracks`; with_ids: also the particle ids, as ((...), ids)."""
+    t_first, t_last, r_first, r_last, ids = [], [], [], [], []
+    for track in tracks:
+        t_first.append(track.t_s[0])
+        t_last.append(track.t_s[-1])
+        r_first.append(track.position_m[0])
+        r_last.append(track.position_m[-1])
+        ids.append(track.particle)
+    ends = (np.array(t_first), np.array(r_first).reshape(-1, 3), np.array(t_last),
+            np.array(r_last).reshape(-1, 3))
+    return (ends, np.array(ids, dtype=np.int64)) if with_ids else ends
 
 
-def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, ends=None,
-                   progress=None):
-    """Bin-averaged E, B of every group (list of GroupFields), coherently summed over
-    the tracks, and their spectra when `spectrum` (SpectrumSettings) is given.
-    `tracks` is an iterable of Track; `ends` (from `track_ends`) lets a
-    streaming caller give the window without a second pass; progress(n) is called after
-    each particle."""
-    if ends is None:
-        tracks = list(tracks)
-        ends = track_ends(tracks)
+def group_windows(groups, ends, settings: FieldSettings):
+    """[(start_s (P,), n_bins (P,)) per group]: the time grids, from the tracks' ends."""
     for group in groups:
         if group.n_points == 0:
             raise ObserverError(f"observer group '{group.name}' has no points")
-    accumulators = []
-    for group in groups:
-        start, n_bins = time_window(group, ends, settings)
-        accumulators.append(FieldAccumulator(group, start, n_bins, settings, spectrum))
+    return [time_window(group, ends, settings) for group in groups]
+
+
+def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, ends=None,
+                   windows=None, progress=None):
+    """Bin-averaged E, B of every group (list of GroupFields), coherently summed over
+    the tracks, and their spectra when `spectrum` (SpectrumSettings) is given.
+    `tracks` is an iterable of Track. The time grids come from `windows` (see
+    `group_windows`), else from `ends` (see `track_ends`), else from the tracks themselves
+    (a second pass). progress(n) is called after each particle."""
+    if windows is None:
+        if ends is None:
+            tracks = list(tracks)
+            ends = track_ends(tracks)
+        windows = group_windows(groups, ends, settings)
+    accumulators = [FieldAccumulator(group, start, n_bins, settings, spectrum)
+                    for group, (start, n_bins) in zip(groups, windows, strict=True)]
     for track in tracks:
         motion = Motion(track, degree=settings.degree, extend=settings.extend,
                         smoothing_m=settings.smoothing_m)
@@ -293,3 +304,15 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, en
         if progress is not None:
             progress(1)
     return [accumulator.result() for accumulator in accumulators]
+
+
+def add_results(first, second):
+    """The sum of two lists of GroupFields of the same groups and grids (partial sums of
+    different particles), written into `first`."""
+    for a, b in zip(first, second, strict=True):
+        a.e_v_per_m += b.e_v_per_m
+        a.b_t += b.b_t
+        if a.spectra is not None:
+            a.spectra.spectrum += b.spectra.spectrum
+            a.spectra.fluence += b.spectra.fluence
+    return first

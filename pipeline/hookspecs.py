@@ -35,7 +35,10 @@ def lagfield_register_importers():
       file as a dict (``columns`` and ``units`` included, for information). Column mapping,
       unit conversion, sorting and validation are done by lagfield for every importer.
     - ``iter_batches(path, options) -> iterator of pandas.DataFrame`` (optional): the same
-      table in pieces, for files larger than memory; rows keep the file's order.
+      table in pieces, for files larger than memory; rows keep the file's order. When
+      ``options["particle_range"]`` is ``(low, high)`` it may leave out pieces that hold no
+      particle id in that range (a distributed worker reads only its own particles); a
+      piece then says where it starts with ``frame.attrs["first_row"]`` (data row from 1).
     """
 
 

@@ -12,7 +12,8 @@ import numpy as np
 import pandas as pd
 
 from . import config as config_module
-from .engine import FieldSettings, compute_fields, track_ends
+from .engine import FieldSettings, compute_fields, group_windows, track_ends
+from .errors import ConfigError
 from .observers import build_group
 from .outputs import SAFETY_NOTE, check_target, sha256, write_results
 from .registry import get_registry
@@ -72,12 +73,27 @@ def run(path, *, overwrite: bool = False, write: bool = True, workers: int | Non
                    min_samples=config.motion.degree + 1, u_tolerance=config.tracks.u_tolerance,
                    registry=registry)
     tracks = open_tracks(config.tracks.path, **options)
+    ends, particle_ids = track_ends(tracks, with_ids=True)
     timings["read_s"] = time.perf_counter() - started
-    ends = track_ends(tracks)
     settings, spectrum = settings_from(config)
+    windows = group_windows(groups, ends, settings)
+    workers = workers if workers is not None else config.compute.workers
+    scheduler = scheduler if scheduler is not None else config.compute.scheduler
+    if workers is not None and scheduler is not None:
+        raise ConfigError("give either workers or a scheduler address, not both")
     t0 = time.perf_counter()
-    results = compute_fields(tracks, groups, settings, spectrum=spectrum, ends=ends,
-                             progress=progress)
+    if workers is None and scheduler is None:
+        results = compute_fields(tracks, groups, settings, spectrum=spectrum,
+                                 windows=windows, progress=progress)
+    else:
+        from .distributed import compute_distributed, connect
+
+        read_options = {k: v for k, v in options.items() if k != "registry"}
+        with connect(workers, scheduler) as client:
+            results = compute_distributed(client, config.tracks.path, read_options,
+                                          particle_ids, groups, settings, spectrum=spectrum,
+                                          windows=windows, chunk=config.compute.chunk,
+                                          progress=progress)
     timings["compute_s"] = time.perf_counter() - t0
     observers = pd.concat([group.table() for group in groups], ignore_index=True)
     spectra = None

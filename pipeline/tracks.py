@@ -119,7 +119,7 @@ class Tracks(Sequence):
 
 
 def read_tracks(path, *, format=None, columns=None, units=None, charge=None, min_samples=2,
-                u_tolerance=0.05, registry=None, options=None) -> Tracks:
+                u_tolerance=0.05, registry=None, options=None, particle_range=None) -> Tracks:
     """Read and validate every track of the file at `path` (all held in memory).
 
     format: importer name (default: the one claiming the file's suffix).
@@ -128,11 +128,12 @@ def read_tracks(path, *, format=None, columns=None, units=None, charge=None, min
     column.  min_samples: fewest samples a particle may have (spline degree + 1).
     u_tolerance: largest relative difference allowed between the speed |u| implies and the
     chord speed of the positions.  options: further [tracks] keys, passed to the importer.
+    particle_range: (low, high) reads only the particles with low <= id <= high.
     Raises TrackError naming file, column, particle and row or time for any bad input.
     """
     reader = _Reader(path, format=format, columns=columns, units=units, charge=charge,
                      min_samples=min_samples, u_tolerance=u_tolerance, registry=registry,
-                     options=options)
+                     options=options, particle_range=particle_range)
     tracks = list(reader.iter_tracks())
     return Tracks(tracks, path=reader.path, n_rows=reader.n_rows,
                   has_momentum=reader.has_momentum)
@@ -162,8 +163,9 @@ class _Reader:
 
     def __init__(self, path, *, format=None, columns=None, units=None, charge=None,
                  min_samples=2, u_tolerance=0.05, registry=None, options=None,
-                 bucket_rows=BUCKET_ROWS):
+                 bucket_rows=BUCKET_ROWS, particle_range=None):
         self.path = pathlib.Path(path)
+        self.particle_range = None if particle_range is None else tuple(particle_range)
         if int(min_samples) < 1:
             raise ValueError(f"min_samples must be at least 1, got {min_samples}")
         if not u_tolerance > 0:
@@ -175,7 +177,8 @@ class _Reader:
         self.factors = {canon: self._factor(canon, unit)
                         for canon, unit in self._mapping(units or {}, "units").items()}
         self.options = dict(options or {}, format=format, columns=dict(columns or {}),
-                            units=dict(units or {}), charge=charge)
+                            units=dict(units or {}), charge=charge,
+                            particle_range=self.particle_range)
         self.importer = self._importer(format, registry)
         self.n_rows = 0
         self.has_momentum = False
@@ -238,14 +241,19 @@ class _Reader:
         """Canonical SI columns (dict of arrays, `row` included) of each batch."""
         first_row = 1
         for frame in self._raw_batches():
+            first_row = frame.attrs.get("first_row", first_row)
             n = len(frame)
             if self._present is None:
                 self._present = self._check_columns(frame)
             if n:
-                yield self._canonical(frame, first_row, particle_only)
+                cols = self._canonical(frame, first_row, particle_only)
+                if self.particle_range is not None:
+                    low, high = self.particle_range
+                    cols = _take(cols, (cols["particle"] >= low) & (cols["particle"] <= high))
+                yield cols
             first_row += n
         self.n_rows = first_row - 1
-        if self.n_rows == 0:
+        if self.n_rows == 0 and self.particle_range is None:
             raise TrackError("the track file has no data rows", path=self.path)
 
     def _check_columns(self, frame) -> tuple:
@@ -320,6 +328,11 @@ class _Reader:
 
     # -- streaming ----------------------------------------------------------------------
     def iter_tracks(self) -> Iterator[Track]:
+        if self.particle_range is not None:  # one chunk of particles: group in memory
+            cols = [c for c in self._batches() if len(c["particle"])]
+            if cols:
+                yield from self._group(_concat(cols))
+            return
         if getattr(self.importer, "iter_batches", None) is None:
             yield from self._group(_concat(list(self._batches())))
             return

@@ -46,10 +46,33 @@ class ParquetImporter:
     def iter_batches(self, path, options):
         import pyarrow.parquet as pq
 
+        wanted = options.get("particle_range")
         with pq.ParquetFile(path) as parquet_file:
             columns = _wanted_columns(parquet_file.schema_arrow.names, options)
+            id_column = dict(options.get("columns") or {}).get("particle", "particle")
+            first_row = 1
             for index in range(parquet_file.num_row_groups):
-                yield parquet_file.read_row_group(index, columns=columns).to_pandas()
+                group = parquet_file.metadata.row_group(index)
+                if wanted is not None and not _may_hold(group, id_column, wanted):
+                    first_row += group.num_rows
+                    continue
+                frame = parquet_file.read_row_group(index, columns=columns).to_pandas()
+                frame.attrs["first_row"] = first_row
+                first_row += group.num_rows
+                yield frame
+
+
+def _may_hold(row_group, id_column: str, particle_range) -> bool:
+    """False only when the row group's statistics show no particle id in the range."""
+    for i in range(row_group.num_columns):
+        column = row_group.column(i)
+        if column.path_in_schema == id_column:
+            stats = column.statistics
+            if stats is None or not stats.has_min_max:
+                return True
+            low, high = particle_range
+            return not (stats.max < low or stats.min > high)
+    return True
 
 
 class ParquetExporter:
