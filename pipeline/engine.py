@@ -144,6 +144,30 @@ def _check_reach(distance_m, group, motion):
             "Move the point off the track")
 
 
+def _split_track_ends(t, state, motion):
+    """Where the sampled track meets its ballistic extension the acceleration jumps: the
+    sample there is doubled (same time, position and velocity; zero acceleration on the
+    extension side), so that each side's segment sees its own one-sided values."""
+    pos, beta, inv_g2, beta_dot = state
+    inserts = []
+    first = np.searchsorted(t, motion.t_first)
+    if 0 < first < t.size and t[first] == motion.t_first:
+        inserts.append((first, first))  # the extension copy goes before
+    last = np.searchsorted(t, motion.t_last)
+    if last < t.size - 1 and t[last] == motion.t_last:
+        inserts.append((last + 1, last))  # and after
+    if not inserts:
+        return t, state
+    where = [at for at, _ in inserts]
+    source = [j for _, j in inserts]
+    t = np.insert(t, where, t[source])
+    pos = np.insert(pos, where, pos[source], axis=0)
+    beta = np.insert(beta, where, beta[source], axis=0)
+    inv_g2 = np.insert(inv_g2, where, inv_g2[source])
+    beta_dot = np.insert(beta_dot, where, np.zeros((len(inserts), 3)), axis=0)
+    return t, (pos, beta, inv_g2, beta_dot)
+
+
 def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
     """Source times, adaptively refined, and the motion at them."""
     t_lo, t_hi = span
@@ -170,7 +194,7 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
         pieces = np.where(np.isfinite(pieces), pieces, 1.0)
         bad = np.flatnonzero(pieces > 1.0)
         if bad.size == 0:
-            return t, state
+            return _split_track_ends(t, state, motion)
         counts = np.minimum(pieces[bad], 1e6).astype(np.int64) - 1
         if t.size + counts.sum() > MAX_SAMPLES_PER_PARTICLE:
             raise LagfieldError(

@@ -43,7 +43,15 @@ def retarded_time(motion, observer_m, t_obs_s, *, far_direction=None, far_distan
 
     high = t_obs.copy()
     delay, _ = delay_and_slope(high)
-    g_high = delay  # g(t) = R/c >= 0
+    g_high = delay  # g(t) = R/c >= 0 (near field); the far-field delay may be negative
+    reach = np.maximum(np.abs(delay), 1e-30)
+    for _ in range(MAX_ITERATIONS):
+        below = g_high < 0.0
+        if not below.any():
+            break
+        high = np.where(below, high + reach, high)
+        g_high = np.where(below, high + delay_and_slope(high)[0] - t_obs, g_high)
+        reach = np.where(below, reach * 4.0, reach)
     reach = np.maximum(np.abs(delay), 1e-30)
     low = high - reach
     for _ in range(MAX_ITERATIONS):

@@ -76,12 +76,31 @@ def window_spectrum(t_obs_s, e_v_per_m, start_s, stop_s, frequencies_hz, taper="
     h_right = np.append(h, 0.0)
     h_left = np.insert(h, 0, 0.0)
     correction = (h_right**2 - h_left**2) / 12.0
-    slope = np.gradient(e, t, axis=0)
+    slope = _slopes(t, e)
     a = (weights[:, None] * e + correction[:, None] * slope).T
     b = (correction[:, None] * e).T
     sums = fourier_sums(t, np.concatenate([a, b]), frequencies_hz)
     omega = 2.0 * np.pi * frequencies_hz
     return sums[:, :3] - 1j * omega[:, None] * sums[:, 3:]
+
+
+def _slopes(t, e):
+    """dE/dt at each sample: the second-order weighted mean of the slopes on both sides,
+    one-sided where a side is missing or of zero length (a doubled sample where the track
+    meets its extension and the acceleration jumps)."""
+    h = np.diff(t)
+    de = np.diff(e, axis=0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        segment = np.where(h[:, None] > 0.0, de / h[:, None], np.nan)
+    h_left = np.insert(h, 0, 0.0)[:, None]
+    h_right = np.append(h, 0.0)[:, None]
+    left = np.vstack([np.full((1, 3), np.nan), segment])
+    right = np.vstack([segment, np.full((1, 3), np.nan)])
+    both = np.isfinite(left) & np.isfinite(right)
+    with np.errstate(invalid="ignore"):
+        mean = (h_right * left + h_left * right) / (h_left + h_right)
+    slope = np.where(both, mean, np.where(np.isfinite(left), left, right))
+    return np.nan_to_num(slope)
 
 
 def fluence(spectrum: np.ndarray) -> np.ndarray:
