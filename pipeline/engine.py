@@ -18,6 +18,7 @@ from scipy import constants
 from .errors import LagfieldError, ObserverError
 from .kernels import deposit, sampling
 from .motion import Motion
+from .retarded import retarded_time
 from .spectra import SAMPLES_PER_PERIOD, SpectrumAccumulator
 
 C = constants.c
@@ -29,7 +30,7 @@ SUBDIVISIONS_PER_INTERVAL = 4  # initial source samples between two track sample
 REACH_DISTANCE_M = 1e-9  # a track this close to a point reaches it
 MAX_REFINEMENTS = 200
 MAX_SAMPLES_PER_PARTICLE = 50_000_000
-SAMPLES_PER_KERNEL_CALL = 2_000_000
+SAMPLES_PER_KERNEL_CALL = 500_000
 
 
 @dataclasses.dataclass(frozen=True)
@@ -127,14 +128,37 @@ def source_span(motion: Motion, group, edge_lo, edge_hi, far, extend: str):
                              motion.t_first, far)
     hi = _ballistic_retarded(edge_hi, group.points_m, r_ends[1], beta_ends[1], g_ends[1],
                              motion.t_last, far)
-    t_lo = min(float(lo.min()), motion.t_first)
-    t_hi = max(float(hi.max()), motion.t_last)
+    # a closed-form root on the wrong side of the track's end means the true root lies
+    # within the sampled span: solve there
+    inside_lo = lo > motion.t_first
+    inside_hi = hi < motion.t_last
+    if inside_lo.any():
+        lo[inside_lo] = _retarded_inside(motion, group, edge_lo, inside_lo, far)
+    if inside_hi.any():
+        hi[inside_hi] = _retarded_inside(motion, group, edge_hi, inside_hi, far)
+    t_lo, t_hi = float(lo.min()), float(hi.max())
     if extend == "none":
-        t_lo, t_hi = motion.t_first, motion.t_last
-    return t_lo, t_hi
+        t_lo, t_hi = max(t_lo, motion.t_first), min(t_hi, motion.t_last)
+    return min(t_lo, motion.t_last), max(t_hi, motion.t_first)
 
 
-def _check_reach(distance_m, group, motion):
+def _retarded_inside(motion, group, edges, mask, far):
+    """Retarded times of observer times `edges` (P,) at the points selected by `mask`."""
+    edges = np.broadcast_to(edges, mask.shape)[mask]
+    if far is None:
+        return retarded_time(motion, group.points_m[mask], edges)
+    directions, distance, origin = far
+    return retarded_time(motion, None, edges, far_direction=directions[mask],
+                         far_distance_m=distance[mask], origin_m=origin)
+
+
+def _check_reach(positions_m, group, motion, far):
+    """ObserverError if the polyline through the source samples comes within
+    REACH_DISTANCE_M of a point (near field only: far-field points are at infinity)."""
+    if far is not None:
+        return
+    distance_m = np.empty(group.n_points)
+    sampling.closest_approach(positions_m, group.points_m, distance_m)
     if distance_m.min() < REACH_DISTANCE_M:
         point = int(np.argmin(distance_m))
         raise ObserverError(
@@ -184,16 +208,14 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
     resolution = settings.resolution_s()
     sampling.source_step_limits(*state, targets, far is not None, resolution,
                                 SAMPLES_PER_BIN, ANGLE_TOLERANCE, limits)
+    _check_reach(state[0], group, motion, far)
     for _ in range(MAX_REFINEMENTS):
-        if far is None:
-            distance = np.empty(group.n_points)
-            sampling.closest_approach(state[0], group.points_m, distance)
-            _check_reach(distance, group, motion)
         allowed = np.minimum(limits[:-1], limits[1:])
         pieces = np.ceil(np.diff(t) / allowed * (1.0 - 1e-12))
         pieces = np.where(np.isfinite(pieces), pieces, 1.0)
         bad = np.flatnonzero(pieces > 1.0)
         if bad.size == 0:
+            _check_reach(state[0], group, motion, far)
             return _split_track_ends(t, state, motion)
         counts = np.minimum(pieces[bad], 1e6).astype(np.int64) - 1
         if t.size + counts.sum() > MAX_SAMPLES_PER_PARTICLE:

@@ -19,11 +19,12 @@ MAX_ITERATIONS = 400
 
 def retarded_time(motion, observer_m, t_obs_s, *, far_direction=None, far_distance_m=None,
                   origin_m=(0.0, 0.0, 0.0)):
-    """Source times t′ (array like t_obs_s) at which light reaching `observer_m` (3,) at
-    t_obs_s left the charge. With `far_direction` n and `far_distance_m` R₀ the far-field
-    condition t = t′ + (R₀ − n·(r(t′) − origin))/c is solved instead."""
+    """Source times t′ (array like t_obs_s) at which light reaching `observer_m` (3,), or
+    one observer per time (K, 3), at t_obs_s left the charge. With `far_direction` n ((3,)
+    or (K, 3)) and `far_distance_m` R₀ the far-field condition
+    t = t′ + (R₀ − n·(r(t′) − origin))/c is solved instead."""
     t_obs = np.atleast_1d(np.asarray(t_obs_s, dtype=float))
-    observer = np.asarray(observer_m, dtype=float)
+    observer = None if observer_m is None else np.asarray(observer_m, dtype=float)
     origin = np.asarray(origin_m, dtype=float)
 
     def delay_and_slope(t_src):
