@@ -29,6 +29,7 @@ ANGLE_TOLERANCE = 0.02  # fraction of R/c or of √(2κ)/|β̇| one source step 
 SUBDIVISIONS_PER_INTERVAL = 4  # initial source samples between two track samples
 REACH_DISTANCE_M = 1e-9  # a track this close to a point reaches it
 MAX_REFINEMENTS = 200
+UNIFORM_SPLIT_MAX = 16  # pieces an interval is split into evenly in one refinement
 MAX_SAMPLES_PER_PARTICLE = 50_000_000
 SAMPLES_PER_KERNEL_CALL = 500_000
 
@@ -217,7 +218,10 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
         if bad.size == 0:
             _check_reach(state[0], group, motion, far)
             return _split_track_ends(t, state, motion)
-        counts = np.minimum(pieces[bad], 1e6).astype(np.int64) - 1
+        # an interval needing few pieces is split evenly; one needing many is halved, so
+        # that a long interval whose limit is small at one end only (a ballistic
+        # extension towards the observer) ends up graded, not uniformly fine
+        counts = np.where(pieces[bad] <= UNIFORM_SPLIT_MAX, pieces[bad], 2).astype(np.int64) - 1
         if t.size + counts.sum() > MAX_SAMPLES_PER_PARTICLE:
             raise LagfieldError(
                 f"particle {motion.particle}, observer group '{group.name}': more than "
