@@ -17,10 +17,10 @@ import math
 import numpy as np
 from scipy import constants
 
-from .kernels import pointwise
+from .kernels import pointwise, quadrature
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
-NUFFT_TOLERANCE = 1e-10
+NUFFT_TOLERANCE = 1e-9
 DIRECT_SUM_LIMIT = 2_000_000  # samples × frequencies below which a direct sum is used
 COULOMB = 1.0 / (4.0 * math.pi * constants.epsilon_0)
 
@@ -53,7 +53,10 @@ def fourier_sums(t_s: np.ndarray, values: np.ndarray, frequencies_hz: np.ndarray
     import finufft
 
     strengths = np.ascontiguousarray(values.astype(complex))
-    sums = finufft.nufft1d3(x, strengths, omega, isign=-1, eps=NUFFT_TOLERANCE, nthreads=1)
+    # upsampfac 1.25 halves the time of this (many-target) type-3 transform for an error
+    # of about 1e-8 of the peak (tests/benchmarks/bench_spectra.py)
+    sums = finufft.nufft1d3(x, strengths, omega, isign=-1, eps=NUFFT_TOLERANCE, nthreads=1,
+                            upsampfac=1.25)
     return sums.T * phase[:, None]
 
 
@@ -67,40 +70,11 @@ def window_spectrum(t_obs_s, e_v_per_m, start_s, stop_s, frequencies_hz, taper="
         return np.zeros((frequencies_hz.size, 3), dtype=complex)
     if taper == "hann":
         e = e * (0.5 - 0.5 * np.cos(2.0 * np.pi * (t - start_s) / (stop_s - start_s)))[:, None]
-    h = np.diff(t)
-    weights = np.zeros(t.size)
-    weights[:-1] += 0.5 * h
-    weights[1:] += 0.5 * h
-    weights[0] += t[0] - start_s  # the slivers before the first and after the last sample
-    weights[-1] += stop_s - t[-1]
-    h_right = np.append(h, 0.0)
-    h_left = np.insert(h, 0, 0.0)
-    correction = (h_right**2 - h_left**2) / 12.0
-    slope = _slopes(t, e)
-    a = (weights[:, None] * e + correction[:, None] * slope).T
-    b = (correction[:, None] * e).T
-    sums = fourier_sums(t, np.concatenate([a, b]), frequencies_hz)
+    ab = np.empty((6, t.size))
+    quadrature.corrected_trapezoid(t, np.ascontiguousarray(e), start_s, stop_s, ab[:3], ab[3:])
+    sums = fourier_sums(t, ab, frequencies_hz)
     omega = 2.0 * np.pi * frequencies_hz
     return sums[:, :3] - 1j * omega[:, None] * sums[:, 3:]
-
-
-def _slopes(t, e):
-    """dE/dt at each sample: the second-order weighted mean of the slopes on both sides,
-    one-sided where a side is missing or of zero length (a doubled sample where the track
-    meets its extension and the acceleration jumps)."""
-    h = np.diff(t)
-    de = np.diff(e, axis=0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        segment = np.where(h[:, None] > 0.0, de / h[:, None], np.nan)
-    h_left = np.insert(h, 0, 0.0)[:, None]
-    h_right = np.append(h, 0.0)[:, None]
-    left = np.vstack([np.full((1, 3), np.nan), segment])
-    right = np.vstack([segment, np.full((1, 3), np.nan)])
-    both = np.isfinite(left) & np.isfinite(right)
-    with np.errstate(invalid="ignore"):
-        mean = (h_right * left + h_left * right) / (h_left + h_right)
-    slope = np.where(both, mean, np.where(np.isfinite(left), left, right))
-    return np.nan_to_num(slope)
 
 
 def fluence(spectrum: np.ndarray) -> np.ndarray:
