@@ -36,11 +36,10 @@ C = 299792458.0  # m/s, scipy.constants.c (kept literal so the kernels need no i
 
 
 @jit
-def _deposit_segment(out_p, ta, tb, dp, ea, eb, w, edge0, step, n_bins):
-    """Add w times the increment dp[6] of the primitive between observer times ta < tb
-    to the bins it covers; ea, eb are its slopes (pointwise fields) at both ends."""
-    ka = math.floor((ta - edge0) / step)
-    kb = math.floor((tb - edge0) / step)
+def _deposit_segment(out_p, ta, tb, ka, kb, dp, ea, eb, w, edge0, step, n_bins):
+    """Add w times the increment dp[6] of the primitive between observer times ta < tb,
+    in bins ka ≤ kb, to the bins it covers; ea, eb are its slopes (pointwise fields) at
+    both ends."""
     if ka == kb:
         if 0 <= ka < n_bins:
             for c in range(6):
@@ -75,20 +74,30 @@ def _deposit_segment(out_p, ta, tb, dp, ea, eb, w, edge0, step, n_bins):
 
 
 # ------------------------------------------------------------------ near-field kernel
+# Per point, each block of samples goes through: `_near_times` (observer times and bins;
+# a block that cannot reach the bins stops here), `_near_samples` (per-sample primitive,
+# integrands, fields), `_near_increments` (per-segment increments) and `_near_deposit`
+# (the only sequential pass). The first three are flat loops that LLVM vectorises (with
+# fastmath off, so each element is computed exactly as a scalar loop would).
 # LLVM vectorises a loop only if it can rule out overlap between the arrays it reads and
 # writes; with separate 2D arrays (runtime row strides) that takes one runtime check per
-# pair of streams and it gives up. So the per-sample passes read one flat array and write
-# another, each made of rows at compile-time constant offsets (CHUNK, BLOCK): the
-# dependence distances are then known constants and no runtime check is needed.
+# pair of streams and it gives up. So the passes read one flat array and write another,
+# each made of rows at compile-time constant offsets: the dependence distances are then
+# known constants and no runtime check is needed between the streams.
 CHUNK = 8192  # source samples per structure-of-arrays copy, shared by all points
-BLOCK = 256  # samples per per-point block: the block scratch stays in the L1 cache
-# rows of the chunk copy (stride CHUNK); HALF_H, H2_12 belong to segment j → j+1
+BLOCK = 256  # samples per block of one point: its scratch stays in the L1/L2 cache
+# row strides, padded so that rows are not a multiple of 4096 bytes apart (where a load
+# from one row can be held up by stores to another, "4K aliasing")
+CHUNK_ROW = CHUNK + 8
+ROW = BLOCK + 8
+# rows of the chunk copy; HALF_H, H2_12 (h/2 and h²/12) belong to segment j → j+1
 T, X, Y, Z, BX, BY, BZ, IG2, AX, AY, AZ, HALF_H, H2_12 = range(13)
 CHUNK_ROWS = 13
-# rows of the block scratch (stride BLOCK): primitive q, integrand f, its derivative g,
-# observer time, bin index (as float), scaled segment increments
-Q, F, G, T_OBS, BIN, INC = 0, 6, 12, 18, 19, 20
-BLOCK_ROWS = 26
+# rows of the block scratch. Per sample: bracket terms q, source-time integrands f and
+# their derivatives g, pointwise fields e (E, n×E), distance, observer time, bin index
+# (a float). Per segment: its increment of the primitive times the particle's scale.
+Q, F, G, E, R, T_OBS, BIN, INC = 0, 6, 12, 18, 24, 25, 26, 27
+BLOCK_ROWS = 33
 INV_C = 1.0 / C
 
 
@@ -96,208 +105,266 @@ INV_C = 1.0 / C
 def _copy_chunk(t, pos, beta, inv_g2, beta_dot, lo, hi, soa):
     """Copy samples lo … hi−1 into the rows of soa (and the trapezoid weights of the
     segments between them), so that every point's passes read unit-stride rows."""
+    t = t[lo:hi]
+    pos = pos[lo:hi].reshape(-1)
+    beta = beta[lo:hi].reshape(-1)
+    inv_g2 = inv_g2[lo:hi]
+    beta_dot = beta_dot[lo:hi].reshape(-1)
     for i in range(hi - lo):
-        j = lo + i
-        soa[T * CHUNK + i] = t[j]
-        soa[X * CHUNK + i] = pos[j, 0]
-        soa[Y * CHUNK + i] = pos[j, 1]
-        soa[Z * CHUNK + i] = pos[j, 2]
-        soa[BX * CHUNK + i] = beta[j, 0]
-        soa[BY * CHUNK + i] = beta[j, 1]
-        soa[BZ * CHUNK + i] = beta[j, 2]
-        soa[IG2 * CHUNK + i] = inv_g2[j]
-        soa[AX * CHUNK + i] = beta_dot[j, 0]
-        soa[AY * CHUNK + i] = beta_dot[j, 1]
-        soa[AZ * CHUNK + i] = beta_dot[j, 2]
+        soa[T * CHUNK_ROW + i] = t[i]
+        soa[X * CHUNK_ROW + i] = pos[3 * i]
+        soa[Y * CHUNK_ROW + i] = pos[3 * i + 1]
+        soa[Z * CHUNK_ROW + i] = pos[3 * i + 2]
+        soa[BX * CHUNK_ROW + i] = beta[3 * i]
+        soa[BY * CHUNK_ROW + i] = beta[3 * i + 1]
+        soa[BZ * CHUNK_ROW + i] = beta[3 * i + 2]
+        soa[IG2 * CHUNK_ROW + i] = inv_g2[i]
+        soa[AX * CHUNK_ROW + i] = beta_dot[3 * i]
+        soa[AY * CHUNK_ROW + i] = beta_dot[3 * i + 1]
+        soa[AZ * CHUNK_ROW + i] = beta_dot[3 * i + 2]
     for i in range(hi - lo - 1):
-        h = t[lo + i + 1] - t[lo + i]
-        soa[HALF_H * CHUNK + i] = 0.5 * h
-        soa[H2_12 * CHUNK + i] = h * h / 12.0
+        h = t[i + 1] - t[i]
+        soa[HALF_H * CHUNK_ROW + i] = 0.5 * h
+        soa[H2_12 * CHUNK_ROW + i] = h * h / 12.0
 
 
 @jit
-def _near_samples(ox, oy, oz, soa, count, edge0, step, scratch):
-    """Per-sample primitive, integrand and derivative of the first `count` samples of soa
-    (a chunk copy, viewed from the block's first sample) seen from (ox, oy, oz), with
-    observer time and bin index, into the block scratch (all per q/(4πε0)). One flat loop
-    with non-negative indices only (no gathers) and few divisions, so it vectorises."""
+def _near_times(ox, oy, oz, soa, count, edge0, inv_step, n_bins, scratch):
+    """Rows R, T_OBS, BIN of the first `count` samples of soa (a chunk copy viewed from
+    the block's first sample) seen from (ox, oy, oz). Returns whether any segment of the
+    block can reach the bins: if not, the block needs no further work."""
+    before = 0
+    after = 0
     for i in range(count):
-        j = i
-        dx = ox - soa[X * CHUNK + j]
-        dy = oy - soa[Y * CHUNK + j]
-        dz = oz - soa[Z * CHUNK + j]
+        dx = ox - soa[X * CHUNK_ROW + i]
+        dy = oy - soa[Y * CHUNK_ROW + i]
+        dz = oz - soa[Z * CHUNK_ROW + i]
         r = math.sqrt(dx * dx + dy * dy + dz * dz)
+        # a true division (not r·(1/c)): edges are placed by differences of these times,
+        # so their rounding shows in the results
+        t_obs = soa[T * CHUNK_ROW + i] + r / C
+        # a time within rounding of an edge may fall on either side: harmless, the split
+        # of a segment at an edge is continuous in the edge's position
+        k = np.floor((t_obs - edge0) * inv_step)
+        scratch[R * ROW + i] = r
+        scratch[T_OBS * ROW + i] = t_obs
+        scratch[BIN * ROW + i] = k
+        before += k < 0.0
+        after += k >= n_bins
+    return before < count and after < count
+
+
+@jit
+def _near_samples(ox, oy, oz, soa, count, scratch):
+    """Per-sample quantities of the block's samples (after `_near_times`), all per
+    q/(4πε0). One flat loop with non-negative indices only (no gathers) and two divisions
+    (1/R, 1/κ): LLVM vectorises it."""
+    for i in range(count):
+        dx = ox - soa[X * CHUNK_ROW + i]
+        dy = oy - soa[Y * CHUNK_ROW + i]
+        dz = oz - soa[Z * CHUNK_ROW + i]
+        r = scratch[R * ROW + i]
+        bx = soa[BX * CHUNK_ROW + i]
+        by = soa[BY * CHUNK_ROW + i]
+        bz = soa[BZ * CHUNK_ROW + i]
+        inv_g2 = soa[IG2 * CHUNK_ROW + i]
         inv_r = 1.0 / r
         nx = dx * inv_r
         ny = dy * inv_r
         nz = dz * inv_r
-        bx = soa[BX * CHUNK + j]
-        by = soa[BY * CHUNK + j]
-        bz = soa[BZ * CHUNK + j]
         nb = nx * bx + ny * by + nz * bz
         cx = ny * bz - nz * by  # n × β
         cy = nz * bx - nx * bz
         cz = nx * by - ny * bx
         # κ = 1 − n·β = (1/γ² + |n×β|²)/(1 + n·β), without cancellation
-        inv_kappa = (1.0 + nb) / (soa[IG2 * CHUNK + j] + cx * cx + cy * cy + cz * cz)
+        inv_kappa = (1.0 + nb) / (inv_g2 + cx * cx + cy * cy + cz * cz)
         inv_cr = inv_r * INV_C
         inv_ckr = inv_cr * inv_kappa
         # bracket terms: n/(cR) + n×(n×β)/(cκR) with n×(n×β) = n(n·β) − β; −n×β/(cκR)
-        scratch[(Q + 0) * BLOCK + i] = nx * inv_cr + (nx * nb - bx) * inv_ckr
-        scratch[(Q + 1) * BLOCK + i] = ny * inv_cr + (ny * nb - by) * inv_ckr
-        scratch[(Q + 2) * BLOCK + i] = nz * inv_cr + (nz * nb - bz) * inv_ckr
-        scratch[(Q + 3) * BLOCK + i] = -cx * inv_ckr
-        scratch[(Q + 4) * BLOCK + i] = -cy * inv_ckr
-        scratch[(Q + 5) * BLOCK + i] = -cz * inv_ckr
+        along = inv_cr + nb * inv_ckr
+        scratch[(Q + 0) * ROW + i] = nx * along - bx * inv_ckr
+        scratch[(Q + 1) * ROW + i] = ny * along - by * inv_ckr
+        scratch[(Q + 2) * ROW + i] = nz * along - bz * inv_ckr
+        minus_inv_ckr = -inv_ckr  # one negation instead of three
+        scratch[(Q + 3) * ROW + i] = cx * minus_inv_ckr
+        scratch[(Q + 4) * ROW + i] = cy * minus_inv_ckr
+        scratch[(Q + 5) * ROW + i] = cz * minus_inv_ckr
         inv_r2 = inv_r * inv_r
-        scratch[(F + 0) * BLOCK + i] = nx * inv_r2
-        scratch[(F + 1) * BLOCK + i] = ny * inv_r2
-        scratch[(F + 2) * BLOCK + i] = nz * inv_r2
-        scratch[(F + 3) * BLOCK + i] = -cx * inv_r2
-        scratch[(F + 4) * BLOCK + i] = -cy * inv_r2
-        scratch[(F + 5) * BLOCK + i] = -cz * inv_r2
+        minus_inv_r2 = -inv_r2
+        scratch[(F + 0) * ROW + i] = nx * inv_r2
+        scratch[(F + 1) * ROW + i] = ny * inv_r2
+        scratch[(F + 2) * ROW + i] = nz * inv_r2
+        scratch[(F + 3) * ROW + i] = cx * minus_inv_r2
+        scratch[(F + 4) * ROW + i] = cy * minus_inv_r2
+        scratch[(F + 5) * ROW + i] = cz * minus_inv_r2
         # d/dt′ (n/R²) = c(3n(n·β) − β)/R³ ;  d/dt′ (n×β/R²) = 3c(n·β)(n×β)/R³ + n×β̇/R²
-        ax = soa[AX * CHUNK + j]
-        ay = soa[AY * CHUNK + j]
-        az = soa[AZ * CHUNK + j]
+        ax = soa[AX * CHUNK_ROW + i]
+        ay = soa[AY * CHUNK_ROW + i]
+        az = soa[AZ * CHUNK_ROW + i]
         c_r3 = C * inv_r2 * inv_r
-        scratch[(G + 0) * BLOCK + i] = c_r3 * (3.0 * nx * nb - bx)
-        scratch[(G + 1) * BLOCK + i] = c_r3 * (3.0 * ny * nb - by)
-        scratch[(G + 2) * BLOCK + i] = c_r3 * (3.0 * nz * nb - bz)
-        scratch[(G + 3) * BLOCK + i] = -(3.0 * nb * cx * c_r3 + (ny * az - nz * ay) * inv_r2)
-        scratch[(G + 4) * BLOCK + i] = -(3.0 * nb * cy * c_r3 + (nz * ax - nx * az) * inv_r2)
-        scratch[(G + 5) * BLOCK + i] = -(3.0 * nb * cz * c_r3 + (nx * ay - ny * ax) * inv_r2)
-        t_obs = soa[T * CHUNK + j] + r / C
-        scratch[T_OBS * BLOCK + i] = t_obs
-        scratch[BIN * BLOCK + i] = np.floor((t_obs - edge0) / step)
+        three_nb = 3.0 * nb * c_r3
+        scratch[(G + 0) * ROW + i] = nx * three_nb - bx * c_r3
+        scratch[(G + 1) * ROW + i] = ny * three_nb - by * c_r3
+        scratch[(G + 2) * ROW + i] = nz * three_nb - bz * c_r3
+        minus_three_nb = -three_nb
+        scratch[(G + 3) * ROW + i] = cx * minus_three_nb - (ny * az - nz * ay) * inv_r2
+        scratch[(G + 4) * ROW + i] = cy * minus_three_nb - (nz * ax - nx * az) * inv_r2
+        scratch[(G + 5) * ROW + i] = cz * minus_three_nb - (nx * ay - ny * ax) * inv_r2
+        # pointwise field (n−β)/(γ²κ³R²) + n×((n−β)×β̇)/(cκ³R), the primitive's slope,
+        # used where a segment crosses a bin edge; n×((n−β)×β̇) = (n−β)(n·β̇) − κβ̇
+        inv_k2 = inv_kappa * inv_kappa
+        inv_k3 = inv_k2 * inv_kappa
+        rad = inv_k3 * inv_cr
+        towards = inv_g2 * inv_k3 * inv_r2 + (nx * ax + ny * ay + nz * az) * rad
+        back = inv_k2 * inv_cr
+        ex = (nx - bx) * towards - ax * back
+        ey = (ny - by) * towards - ay * back
+        ez = (nz - bz) * towards - az * back
+        scratch[(E + 0) * ROW + i] = ex
+        scratch[(E + 1) * ROW + i] = ey
+        scratch[(E + 2) * ROW + i] = ez
+        scratch[(E + 3) * ROW + i] = ny * ez - nz * ey
+        scratch[(E + 4) * ROW + i] = nz * ex - nx * ez
+        scratch[(E + 5) * ROW + i] = nx * ey - ny * ex
+
+
+@jit
+def _increment(scratch, c, i, half_h, h2_12):
+    """Component c of the primitive's change over segment i → i+1: bracket difference
+    plus the trapezoid rule (half_h = h/2) with its Euler–Maclaurin correction
+    (h2_12 = h²/12)."""
+    a = c * ROW + i
+    return ((scratch[Q * ROW + a + 1] - scratch[Q * ROW + a])
+            + half_h * (scratch[F * ROW + a] + scratch[F * ROW + a + 1])
+            + h2_12 * (scratch[G * ROW + a] - scratch[G * ROW + a + 1]))
 
 
 @jit
 def _near_increments(soa, count, w, scratch):
-    """Row INC + c: w times the primitive's change over segment i → i+1 (bracket
-    difference plus the trapezoid rule with its Euler–Maclaurin correction)."""
+    """Rows INC + c: w times the increments of the block's segments. The six components
+    are written out rather than looped over: LLVM vectorises innermost loops only."""
     for i in range(count - 1):
-        half_h = soa[HALF_H * CHUNK + i]
-        h2_12 = soa[H2_12 * CHUNK + i]
-        for c in range(6):
-            a = c * BLOCK + i
-            scratch[(INC + c) * BLOCK + i] = w * (
-                (scratch[Q * BLOCK + a + 1] - scratch[Q * BLOCK + a])
-                + half_h * (scratch[F * BLOCK + a] + scratch[F * BLOCK + a + 1])
-                + h2_12 * (scratch[G * BLOCK + a] - scratch[G * BLOCK + a + 1]))
+        half_h = soa[HALF_H * CHUNK_ROW + i]
+        h2_12 = soa[H2_12 * CHUNK_ROW + i]
+        scratch[(INC + 0) * ROW + i] = w * _increment(scratch, 0, i, half_h, h2_12)
+        scratch[(INC + 1) * ROW + i] = w * _increment(scratch, 1, i, half_h, h2_12)
+        scratch[(INC + 2) * ROW + i] = w * _increment(scratch, 2, i, half_h, h2_12)
+        scratch[(INC + 3) * ROW + i] = w * _increment(scratch, 3, i, half_h, h2_12)
+        scratch[(INC + 4) * ROW + i] = w * _increment(scratch, 4, i, half_h, h2_12)
+        scratch[(INC + 5) * ROW + i] = w * _increment(scratch, 5, i, half_h, h2_12)
 
 
 @jit
-def _near_field(ox, oy, oz, soa, j, e):
-    """Pointwise field at chunk sample j, e[0:3] = E, e[3:6] = n×E, per q/(4πε0): the
-    slopes of the primitive, needed only where a segment crosses a bin edge."""
-    dx = ox - soa[X * CHUNK + j]
-    dy = oy - soa[Y * CHUNK + j]
-    dz = oz - soa[Z * CHUNK + j]
-    r = math.sqrt(dx * dx + dy * dy + dz * dz)
-    inv_r = 1.0 / r
-    nx = dx * inv_r
-    ny = dy * inv_r
-    nz = dz * inv_r
-    bx = soa[BX * CHUNK + j]
-    by = soa[BY * CHUNK + j]
-    bz = soa[BZ * CHUNK + j]
-    ax = soa[AX * CHUNK + j]
-    ay = soa[AY * CHUNK + j]
-    az = soa[AZ * CHUNK + j]
-    inv_g2 = soa[IG2 * CHUNK + j]
-    nb = nx * bx + ny * by + nz * bz
-    cx = ny * bz - nz * by
-    cy = nz * bx - nx * bz
-    cz = nx * by - ny * bx
-    inv_kappa = (1.0 + nb) / (inv_g2 + cx * cx + cy * cy + cz * cz)
-    # (n−β)/(γ²κ³R²) + n×((n−β)×β̇)/(cκ³R)
-    inv_k3 = inv_kappa * inv_kappa * inv_kappa
-    mx = nx - bx
-    my = ny - by
-    mz = nz - bz
-    wx = my * az - mz * ay  # (n−β)×β̇
-    wy = mz * ax - mx * az
-    wz = mx * ay - my * ax
-    vel = inv_g2 * inv_k3 * inv_r * inv_r
-    rad = inv_k3 * inv_r * INV_C
-    e[0] = mx * vel + (ny * wz - nz * wy) * rad
-    e[1] = my * vel + (nz * wx - nx * wz) * rad
-    e[2] = mz * vel + (nx * wy - ny * wx) * rad
-    e[3] = ny * e[2] - nz * e[1]
-    e[4] = nz * e[0] - nx * e[2]
-    e[5] = nx * e[1] - ny * e[0]
+def _load6(out_p, k):
+    """The six components of bin k."""
+    return out_p[k, 0], out_p[k, 1], out_p[k, 2], out_p[k, 3], out_p[k, 4], out_p[k, 5]
 
 
 @jit
-def _near_deposit(out_p, ox, oy, oz, soa, count, scratch, w, edge0, step, n_bins,
-                  dp, ea, eb):
-    """Add the block's count−1 segments to the bins, in order. Runs of segments inside one
-    bin are summed in six local accumulators (the same additions in the same order as
-    adding to out_p one by one, without a store and reload per segment); a segment
-    crossing an edge is split by `_deposit_segment`."""
-    current = -1
+def _store6(out_p, k, a0, a1, a2, a3, a4, a5):
+    """Set the six components of bin k."""
+    out_p[k, 0] = a0
+    out_p[k, 1] = a1
+    out_p[k, 2] = a2
+    out_p[k, 3] = a3
+    out_p[k, 4] = a4
+    out_p[k, 5] = a5
+
+
+@jit
+def _split(scratch, c, i, w, h, h01, h10, h11):
+    """Component c of what segment i, crossing one edge, adds to its first bin and to the
+    next: the arithmetic of `_deposit_segment`, with w applied to the increment first."""
+    slopes = w * (h * (h10 * scratch[(E + c) * ROW + i] + h11 * scratch[(E + c) * ROW + i + 1]))
+    inc = scratch[(INC + c) * ROW + i]
+    return h01 * inc + slopes, (1.0 - h01) * inc - slopes
+
+
+@jit
+def _near_deposit(out_p, soa, count, scratch, w, edge0, step, n_bins, dp, ea, eb):
+    """Add the block's count−1 segments to the bins, in order.
+
+    The bin being filled is held in six local accumulators, loaded from out_p when the
+    bin changes and stored back when it is left: the same additions in the same order as
+    adding to out_p one by one, without a store and reload per segment. A segment that
+    crosses one edge between two valid bins is split here; any other crossing segment
+    goes to `_deposit_segment`.
+    """
+    current = -1  # the bin held in the accumulators, or −1
+    held = -1.0  # the same as a float
     a0 = a1 = a2 = a3 = a4 = a5 = 0.0
     for i in range(count - 1):
-        ka = scratch[BIN * BLOCK + i]
-        if ka == scratch[BIN * BLOCK + i + 1]:
-            if 0.0 <= ka < n_bins:
-                k = int(ka)
-                if k != current:
-                    if current >= 0:
-                        out_p[current, 0] = a0
-                        out_p[current, 1] = a1
-                        out_p[current, 2] = a2
-                        out_p[current, 3] = a3
-                        out_p[current, 4] = a4
-                        out_p[current, 5] = a5
-                    current = k
-                    a0 = out_p[k, 0]
-                    a1 = out_p[k, 1]
-                    a2 = out_p[k, 2]
-                    a3 = out_p[k, 3]
-                    a4 = out_p[k, 4]
-                    a5 = out_p[k, 5]
-                a0 += scratch[(INC + 0) * BLOCK + i]
-                a1 += scratch[(INC + 1) * BLOCK + i]
-                a2 += scratch[(INC + 2) * BLOCK + i]
-                a3 += scratch[(INC + 3) * BLOCK + i]
-                a4 += scratch[(INC + 4) * BLOCK + i]
-                a5 += scratch[(INC + 5) * BLOCK + i]
+        ka = scratch[BIN * ROW + i]
+        kb = scratch[BIN * ROW + i + 1]
+        if ka == kb:
+            if ka != held:
+                if not 0.0 <= ka < n_bins:
+                    continue
+                if current >= 0:
+                    _store6(out_p, current, a0, a1, a2, a3, a4, a5)
+                current = int(ka)
+                held = ka
+                a0, a1, a2, a3, a4, a5 = _load6(out_p, current)
+            a0 += scratch[(INC + 0) * ROW + i]
+            a1 += scratch[(INC + 1) * ROW + i]
+            a2 += scratch[(INC + 2) * ROW + i]
+            a3 += scratch[(INC + 3) * ROW + i]
+            a4 += scratch[(INC + 4) * ROW + i]
+            a5 += scratch[(INC + 5) * ROW + i]
+            continue
+        if kb < 0.0 or (ka >= n_bins and kb >= n_bins):
+            continue  # nothing of the segment lies inside the bins
+        ta = scratch[T_OBS * ROW + i]
+        tb = scratch[T_OBS * ROW + i + 1]
+        if kb == ka + 1.0 and 0.0 <= ka and kb < n_bins:
+            h = tb - ta
+            s = min(max((edge0 + kb * step - ta) / h, 0.0), 1.0)
+            one_minus = 1.0 - s
+            h01 = s * s * (3.0 - 2.0 * s)
+            h10 = s * one_minus * one_minus
+            h11 = -s * s * one_minus
+            k = int(ka)
+            if ka != held:
+                if current >= 0:
+                    _store6(out_p, current, a0, a1, a2, a3, a4, a5)
+                a0, a1, a2, a3, a4, a5 = _load6(out_p, k)
+            l0, u0 = _split(scratch, 0, i, w, h, h01, h10, h11)
+            l1, u1 = _split(scratch, 1, i, w, h, h01, h10, h11)
+            l2, u2 = _split(scratch, 2, i, w, h, h01, h10, h11)
+            l3, u3 = _split(scratch, 3, i, w, h, h01, h10, h11)
+            l4, u4 = _split(scratch, 4, i, w, h, h01, h10, h11)
+            l5, u5 = _split(scratch, 5, i, w, h, h01, h10, h11)
+            _store6(out_p, k, a0 + l0, a1 + l1, a2 + l2, a3 + l3, a4 + l4, a5 + l5)
+            current = k + 1
+            held = kb
+            a0, a1, a2, a3, a4, a5 = _load6(out_p, current)
+            if s < 1.0:
+                a0 += u0
+                a1 += u1
+                a2 += u2
+                a3 += u3
+                a4 += u4
+                a5 += u5
             continue
         if current >= 0:
-            out_p[current, 0] = a0
-            out_p[current, 1] = a1
-            out_p[current, 2] = a2
-            out_p[current, 3] = a3
-            out_p[current, 4] = a4
-            out_p[current, 5] = a5
+            _store6(out_p, current, a0, a1, a2, a3, a4, a5)
             current = -1
-        half_h = soa[HALF_H * CHUNK + i]
-        h2_12 = soa[H2_12 * CHUNK + i]
+            held = -1.0
         for c in range(6):
-            a = c * BLOCK + i
-            dp[c] = ((scratch[Q * BLOCK + a + 1] - scratch[Q * BLOCK + a])
-                     + half_h * (scratch[F * BLOCK + a] + scratch[F * BLOCK + a + 1])
-                     + h2_12 * (scratch[G * BLOCK + a] - scratch[G * BLOCK + a + 1]))
-        _near_field(ox, oy, oz, soa, i, ea)
-        _near_field(ox, oy, oz, soa, i + 1, eb)
-        _deposit_segment(out_p, scratch[T_OBS * BLOCK + i], scratch[T_OBS * BLOCK + i + 1],
-                         dp, ea, eb, w, edge0, step, n_bins)
+            dp[c] = _increment(scratch, c, i, soa[HALF_H * CHUNK_ROW + i],
+                               soa[H2_12 * CHUNK_ROW + i])
+            ea[c] = scratch[(E + c) * ROW + i]
+            eb[c] = scratch[(E + c) * ROW + i + 1]
+        _deposit_segment(out_p, ta, tb, int(ka), int(kb), dp, ea, eb, w, edge0, step, n_bins)
     if current >= 0:
-        out_p[current, 0] = a0
-        out_p[current, 1] = a1
-        out_p[current, 2] = a2
-        out_p[current, 3] = a3
-        out_p[current, 4] = a4
-        out_p[current, 5] = a5
+        _store6(out_p, current, a0, a1, a2, a3, a4, a5)
 
 
 @jit
 def _near_point(out_p, ox, oy, oz, offsets, scale, m0, lo, hi, soa, edge0, step, n_bins):
     """All segments of samples lo … hi−1 (the current chunk) seen from one point, particle
     by particle and in time order, in blocks of BLOCK samples overlapping by one."""
-    scratch = np.empty(BLOCK_ROWS * BLOCK)
+    scratch = np.empty(BLOCK_ROWS * ROW)
     dp = np.empty(6)
     ea = np.empty(6)
     eb = np.empty(6)
@@ -309,10 +376,11 @@ def _near_point(out_p, ox, oy, oz, offsets, scale, m0, lo, hi, soa, edge0, step,
         while last - first >= 2:
             count = min(BLOCK, last - first)
             block = soa[first:]
-            _near_samples(ox, oy, oz, block, count, edge0, step, scratch)
-            _near_increments(block, count, w, scratch)
-            _near_deposit(out_p, ox, oy, oz, block, count, scratch, w, edge0, step,
-                          n_bins, dp, ea, eb)
+            if _near_times(ox, oy, oz, block, count, edge0, 1.0 / step, n_bins, scratch):
+                _near_samples(ox, oy, oz, block, count, scratch)
+                _near_increments(block, count, w, scratch)
+                _near_deposit(out_p, block, count, scratch, w, edge0, step, n_bins, dp, ea,
+                              eb)
             first += count - 1
         m += 1
 
@@ -333,7 +401,7 @@ def deposit_near(t, pos, beta, inv_g2, beta_dot, offsets, scale, observers, edge
     of threads.
     """
     n_samples = offsets[offsets.shape[0] - 1]
-    soa = np.empty(CHUNK_ROWS * CHUNK)
+    soa = np.empty(CHUNK_ROWS * CHUNK_ROW)
     m0 = 0
     lo = offsets[0]
     while n_samples - lo >= 2:
@@ -423,7 +491,10 @@ def deposit_far(t, pos, beta, inv_g2, beta_dot, offsets, scale, directions, dist
                                  beta_dot, j, qb, eb)
                 for c in range(6):
                     dp[c] = qb[c] - qa[c]
-                _deposit_segment(out_p, ta, tb, dp, ea, eb, w, edge0[p], step, n_bins[p])
+                ka = math.floor((ta - edge0[p]) / step)
+                kb = math.floor((tb - edge0[p]) / step)
+                _deposit_segment(out_p, ta, tb, ka, kb, dp, ea, eb, w, edge0[p], step,
+                                 n_bins[p])
                 for c in range(6):
                     qa[c] = qb[c]
                     ea[c] = eb[c]
