@@ -194,8 +194,9 @@ def test_incoherent_run_adds_weighted_fluences(samples):
     incoherent = far_run(tracks, group, f, step_s=step, coherent=False).spectra.fluence[0]
     expected = sum(w * s for w, s in zip(weights, singles, strict=True))
     # the runs' windows differ (one track's vs all three), hence their source sampling:
-    # agreement to the quadrature's precision (~1e-8), not to rounding
-    np.testing.assert_allclose(incoherent, expected, rtol=1e-6, atol=1e-12 * expected.max())
+    # agreement to the quadrature's precision (~1e-8 of the peak), not to rounding; deep in
+    # the spectrum's minima that is far more than 1e-6 of the local value, hence the floor
+    np.testing.assert_allclose(incoherent, expected, rtol=1e-6, atol=1e-9 * expected.max())
     temporal = sum(w * e for w, e in zip(weights, energies, strict=True))
     assert integrate.trapezoid(incoherent, f) == pytest.approx(temporal, rel=PARSEVAL_TOLERANCE)
 

@@ -31,6 +31,7 @@ import numba
 import numpy as np
 
 from ._jit import jit
+from .pointwise import field_at
 
 C = 299792458.0  # m/s, scipy.constants.c (kept literal so the kernels need no import)
 
@@ -421,28 +422,13 @@ def _far_sample(nx, ny, nz, r0, ox, oy, oz, t, pos, beta, inv_g2, beta_dot, j, q
     bx = beta[j, 0]
     by = beta[j, 1]
     bz = beta[j, 2]
+    e[0], e[1], e[2], kappa = field_at(nx, ny, nz, bx, by, bz, inv_g2[j], beta_dot[j, 0],
+                                       beta_dot[j, 1], beta_dot[j, 2], 1.0 / r0, False)
     nb = nx * bx + ny * by + nz * bz
-    cx = ny * bz - nz * by
-    cy = nz * bx - nx * bz
-    cz = nx * by - ny * bx
-    kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
     inv_ckr = 1.0 / (C * kappa * r0)
     q[0] = (nx * nb - bx) * inv_ckr
     q[1] = (ny * nb - by) * inv_ckr
     q[2] = (nz * nb - bz) * inv_ckr
-    ax = beta_dot[j, 0]
-    ay = beta_dot[j, 1]
-    az = beta_dot[j, 2]
-    mx = nx - bx
-    my = ny - by
-    mz = nz - bz
-    wx = my * az - mz * ay
-    wy = mz * ax - mx * az
-    wz = mx * ay - my * ax
-    rad = 1.0 / (kappa * kappa * kappa * r0 * C)
-    e[0] = (ny * wz - nz * wy) * rad
-    e[1] = (nz * wx - nx * wz) * rad
-    e[2] = (nx * wy - ny * wx) * rad
     # n × (E or primitive): the B parts, per q/(4πε0 c)
     q[3] = ny * q[2] - nz * q[1]
     q[4] = nz * q[0] - nx * q[2]

@@ -16,6 +16,28 @@ C = 299792458.0
 
 
 @jit
+def field_at(nx, ny, nz, bx, by, bz, inv_g2, ax, ay, az, inv_r, velocity_term):
+    """(Ex, Ey, Ez, κ) per q/(4πε0) for unit vector n, β, 1/γ², β̇ (1/s) and 1/R (1/m);
+    the velocity term only when `velocity_term` (else the radiation term alone)."""
+    nb = nx * bx + ny * by + nz * bz
+    cx = ny * bz - nz * by
+    cy = nz * bx - nx * bz
+    cz = nx * by - ny * bx
+    kappa = (inv_g2 + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
+    inv_k3 = 1.0 / (kappa * kappa * kappa)
+    mx = nx - bx
+    my = ny - by
+    mz = nz - bz
+    wx = my * az - mz * ay  # (n−β)×β̇
+    wy = mz * ax - mx * az
+    wz = mx * ay - my * ax
+    vel = inv_g2 * inv_k3 * inv_r * inv_r if velocity_term else 0.0
+    rad = inv_k3 * inv_r / C
+    return (mx * vel + (ny * wz - nz * wy) * rad, my * vel + (nz * wx - nx * wz) * rad,
+            mz * vel + (nx * wy - ny * wx) * rad, kappa)
+
+
+@jit
 def fields_near(t, pos, beta, inv_g2, beta_dot, observer, t_obs, e_out):
     """t_obs (N,) and e_out (N, 3) (per q/4πε0) of samples (t, pos, beta, inv_g2,
     beta_dot) seen from observer (3,)."""
@@ -24,32 +46,9 @@ def fields_near(t, pos, beta, inv_g2, beta_dot, observer, t_obs, e_out):
         dy = observer[1] - pos[j, 1]
         dz = observer[2] - pos[j, 2]
         r = math.sqrt(dx * dx + dy * dy + dz * dz)
-        nx = dx / r
-        ny = dy / r
-        nz = dz / r
-        bx = beta[j, 0]
-        by = beta[j, 1]
-        bz = beta[j, 2]
-        nb = nx * bx + ny * by + nz * bz
-        cx = ny * bz - nz * by
-        cy = nz * bx - nx * bz
-        cz = nx * by - ny * bx
-        kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
-        inv_k3 = 1.0 / (kappa * kappa * kappa)
-        mx = nx - bx
-        my = ny - by
-        mz = nz - bz
-        ax = beta_dot[j, 0]
-        ay = beta_dot[j, 1]
-        az = beta_dot[j, 2]
-        wx = my * az - mz * ay
-        wy = mz * ax - mx * az
-        wz = mx * ay - my * ax
-        vel = inv_g2[j] * inv_k3 / (r * r)
-        rad = inv_k3 / (r * C)
-        e_out[j, 0] = mx * vel + (ny * wz - nz * wy) * rad
-        e_out[j, 1] = my * vel + (nz * wx - nx * wz) * rad
-        e_out[j, 2] = mz * vel + (nx * wy - ny * wx) * rad
+        e_out[j, 0], e_out[j, 1], e_out[j, 2], _ = field_at(
+            dx / r, dy / r, dz / r, beta[j, 0], beta[j, 1], beta[j, 2], inv_g2[j],
+            beta_dot[j, 0], beta_dot[j, 1], beta_dot[j, 2], 1.0 / r, True)
         t_obs[j] = t[j] + r / C
 
 
@@ -61,27 +60,9 @@ def fields_far(t, pos, beta, inv_g2, beta_dot, direction, distance, origin, t_ob
     ny = direction[1]
     nz = direction[2]
     for j in range(t.shape[0]):
-        bx = beta[j, 0]
-        by = beta[j, 1]
-        bz = beta[j, 2]
-        nb = nx * bx + ny * by + nz * bz
-        cx = ny * bz - nz * by
-        cy = nz * bx - nx * bz
-        cz = nx * by - ny * bx
-        kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
-        rad = 1.0 / (kappa * kappa * kappa * distance * C)
-        mx = nx - bx
-        my = ny - by
-        mz = nz - bz
-        ax = beta_dot[j, 0]
-        ay = beta_dot[j, 1]
-        az = beta_dot[j, 2]
-        wx = my * az - mz * ay
-        wy = mz * ax - mx * az
-        wz = mx * ay - my * ax
-        e_out[j, 0] = (ny * wz - nz * wy) * rad
-        e_out[j, 1] = (nz * wx - nx * wz) * rad
-        e_out[j, 2] = (nx * wy - ny * wx) * rad
+        e_out[j, 0], e_out[j, 1], e_out[j, 2], _ = field_at(
+            nx, ny, nz, beta[j, 0], beta[j, 1], beta[j, 2], inv_g2[j], beta_dot[j, 0],
+            beta_dot[j, 1], beta_dot[j, 2], 1.0 / distance, False)
         projected = (nx * (pos[j, 0] - origin[0]) + ny * (pos[j, 1] - origin[1])
                      + nz * (pos[j, 2] - origin[2]))
         t_obs[j] = t[j] + (distance - projected) / C
