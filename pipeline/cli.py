@@ -31,8 +31,9 @@ def _parser() -> argparse.ArgumentParser:
                         "radiation it implies")
     inspect.add_argument("tracks", help="track file (CSV, Parquet or a plugin's format)")
     inspect.add_argument("--format", help="importer name (default: from the file ending)")
-    inspect.add_argument("--charge", type=float, help="charge per particle in C, when the "
-                                                       "file has no charge column")
+    inspect.add_argument("--charge", metavar="Q",
+                         help="charge per particle (C, or with a unit: --charge='-1 e'), "
+                              "when the file has no charge column")
     inspect.add_argument("--json", action="store_true", help="machine-readable output")
     commands.add_parser("plugins", help="list the installed importers and exporters")
     return parser
@@ -82,7 +83,14 @@ def _cmd_inspect(args) -> int:
     if args.format:
         options["format"] = args.format
     if args.charge is not None:
-        options["charge"] = args.charge
+        from .units import to_si
+
+        value = args.charge.strip()
+        try:
+            value = float(value)
+        except ValueError:
+            pass
+        options["charge"] = to_si(value, "charge", where="--charge")
     report = inspect_tracks(args.tracks, **options)
     print(json.dumps(report, indent=2) if args.json else format_report(report))
     return 0
