@@ -4,8 +4,10 @@ for bad run files and impossible geometry."""
 from __future__ import annotations
 
 import json
+import signal
 import subprocess
 import sys
+import time
 
 import numpy as np
 import pandas as pd
@@ -145,3 +147,23 @@ def test_plugins_command_lists_builtins():
     for name in ("csv", "parquet"):
         assert name in result.stdout
     assert "lagfield 0.1.0" in result.stdout
+
+
+@pytest.mark.parametrize("how", [signal.SIGINT, signal.SIGKILL])
+def test_killed_run_leaves_no_tables(tmp_path, how):
+    # a run long enough to be caught midway: a fine step and a long frequency list
+    run_file = write_run(tmp_path, step='"0.02 ps"', extra="""
+[spectrum]
+frequencies = { start = "1 GHz", stop = "5 THz", count = 50000 }
+""", observers='plane = { center = [0.05, 0, 0], u = [0, 1, 0], v = [0, 0, 1], '
+                 'size = ["2 cm", "2 cm"], shape = [4, 8] }')
+    process = subprocess.Popen([sys.executable, "-m", "lagfield.cli", "run", str(run_file)],
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    time.sleep(5.0)
+    assert process.poll() is None, "the run ended before it could be interrupted"
+    process.send_signal(how)
+    process.wait(timeout=60)
+    assert process.returncode != 0
+    assert not (tmp_path / "out").exists()
+    if how == signal.SIGINT:  # an interrupted run also removes its staging directory
+        assert not list(tmp_path.glob(".out*"))
