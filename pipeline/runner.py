@@ -11,6 +11,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from . import __version__
 from . import config as config_module
 from .engine import FieldSettings, compute_fields, group_windows, track_ends
 from .errors import ConfigError
@@ -103,8 +104,6 @@ def run(path, *, overwrite: bool = False, write: bool = True, workers: int | Non
     warnings = [f"plugin '{b.name}' ({b.distribution}) could not be loaded: {b.error}"
                 for b in registry.broken]
     timings["total_s"] = time.perf_counter() - started
-    from . import __version__
-
     signals.summary = {
         "program": "lagfield", "version": __version__,
         "python": platform.python_version(),
