@@ -29,7 +29,7 @@ ANGLE_TOLERANCE = 0.02  # fraction of R/c or of √(2κ)/|β̇| one source step 
 SUBDIVISIONS_PER_INTERVAL = 4  # initial source samples between two track samples
 REACH_DISTANCE_M = 1e-9  # a track this close to a point reaches it
 MAX_REFINEMENTS = 200
-UNIFORM_SPLIT_MAX = 16  # pieces an interval is split into evenly in one refinement
+UNIFORM_SPLIT_MAX = 64  # pieces an interval is split into evenly in one refinement
 MAX_SAMPLES_PER_PARTICLE = 50_000_000
 SAMPLES_PER_KERNEL_CALL = 500_000
 
