@@ -39,31 +39,20 @@ def _parser() -> argparse.ArgumentParser:
     return parser
 
 
-def _progress_bar(total: int):
-    if not sys.stderr.isatty():
-        return None, None
-    from tqdm import tqdm
-
-    bar = tqdm(total=total, unit="particle", desc="fields", file=sys.stderr, leave=False)
-    return bar, bar.update
-
-
 def _cmd_run(args) -> int:
     from .runner import run
 
     bar = None
+    if sys.stderr.isatty():  # progress on a terminal only
+        from tqdm import tqdm
 
-    def progress(n):
-        nonlocal bar
-        if bar is None:
-            bar, _ = _progress_bar(None)
+        bar = tqdm(unit="particle", desc="fields", file=sys.stderr, leave=False)
+    try:
+        signals = run(args.run_file, overwrite=args.overwrite, workers=args.workers,
+                      scheduler=args.scheduler, progress=bar.update if bar else None)
+    finally:
         if bar is not None:
-            bar.update(n)
-
-    signals = run(args.run_file, overwrite=args.overwrite, workers=args.workers,
-                  scheduler=args.scheduler, progress=progress)
-    if bar is not None:
-        bar.close()
+            bar.close()
     summary = signals.summary
     print(f"lagfield {summary['version']}: {summary['particles']} particles, "
           f"{len(signals.observers)} observer points in "

@@ -308,19 +308,37 @@ class FieldAccumulator:
         return GroupFields(self.group, step, self.start_s, self.n_bins, e, b, self.spectra)
 
 
+class TrackEnds:
+    """Collects the first and last sample and the id of every track it is shown
+    (`add(track)`), for the default window and for cutting particles into chunks."""
+
+    def __init__(self):
+        self._t_first, self._t_last, self._r_first, self._r_last = [], [], [], []
+        self._ids = []
+
+    def add(self, track) -> None:
+        self._t_first.append(track.t_s[0])
+        self._t_last.append(track.t_s[-1])
+        self._r_first.append(track.position_m[0])
+        self._r_last.append(track.position_m[-1])
+        self._ids.append(track.particle)
+
+    def ends(self):
+        """(t_first (M,), r_first (M, 3), t_last (M,), r_last (M, 3))."""
+        return (np.array(self._t_first), np.array(self._r_first).reshape(-1, 3),
+                np.array(self._t_last), np.array(self._r_last).reshape(-1, 3))
+
+    def ids(self) -> np.ndarray:
+        return np.array(self._ids, dtype=np.int64)
+
+
 def track_ends(tracks, *, with_ids: bool = False):
     """(t_first, r_first, t_last, r_last) of every track, for the default window, in one
     pass over `tracks`; with_ids: also the particle ids, as ((...), ids)."""
-    t_first, t_last, r_first, r_last, ids = [], [], [], [], []
+    collected = TrackEnds()
     for track in tracks:
-        t_first.append(track.t_s[0])
-        t_last.append(track.t_s[-1])
-        r_first.append(track.position_m[0])
-        r_last.append(track.position_m[-1])
-        ids.append(track.particle)
-    ends = (np.array(t_first), np.array(r_first).reshape(-1, 3), np.array(t_last),
-            np.array(r_last).reshape(-1, 3))
-    return (ends, np.array(ids, dtype=np.int64)) if with_ids else ends
+        collected.add(track)
+    return (collected.ends(), collected.ids()) if with_ids else collected.ends()
 
 
 def group_windows(groups, ends, settings: FieldSettings):

@@ -13,7 +13,7 @@ import pandas as pd
 
 from . import __version__
 from . import config as config_module
-from .engine import FieldSettings, compute_fields, group_windows, track_ends
+from .engine import FieldSettings, TrackEnds, compute_fields, group_windows
 from .errors import ConfigError
 from .observers import build_group
 from .outputs import SAFETY_NOTE, check_target, sha256, write_results
@@ -73,8 +73,9 @@ def run(path, *, overwrite: bool = False, write: bool = True, workers: int | Non
                    units=config.tracks.units, charge=config.tracks.charge_c,
                    min_samples=config.motion.degree + 1, u_tolerance=config.tracks.u_tolerance,
                    registry=registry)
-    tracks = open_tracks(config.tracks.path, **options)
-    ends, particle_ids = track_ends(tracks, with_ids=True)
+    collected = TrackEnds()  # gathered during the validation pass: no pass of its own
+    tracks = open_tracks(config.tracks.path, visit=collected.add, **options)
+    ends, particle_ids = collected.ends(), collected.ids()
     timings["read_s"] = time.perf_counter() - started
     settings, spectrum = settings_from(config)
     windows = group_windows(groups, ends, settings)

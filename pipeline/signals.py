@@ -34,3 +34,14 @@ class Signals:
 
     def __getitem__(self, name: str) -> pd.DataFrame:
         return self.tables()[name]
+
+    def write_tables(self, directory, suffix: str, write) -> list[str]:
+        """Call write(table, path) for each table, as directory/<name><suffix>; returns
+        the file names (for exporters that write one file per table)."""
+        from pathlib import Path
+
+        written = []
+        for stem, table in self.tables().items():
+            write(table, Path(directory) / f"{stem}{suffix}")
+            written.append(f"{stem}{suffix}")
+        return written

@@ -139,11 +139,17 @@ def read_tracks(path, *, format=None, columns=None, units=None, charge=None, min
                   has_momentum=reader.has_momentum)
 
 
-def open_tracks(path, **read_options) -> Tracks:
+def open_tracks(path, *, visit=None, **read_options) -> Tracks:
     """Validate the file at `path` in one streaming pass and return `Tracks` that stream
-    from it again on every iteration (bounded memory). Options as for `read_tracks`."""
+    from it again on every iteration (bounded memory). `visit(track)`, when given, sees
+    every track of that pass (so a caller needs no pass of its own for, e.g., the tracks'
+    ends). Options as for `read_tracks`."""
     reader = _Reader(path, **read_options)
-    n_particles = sum(1 for _ in reader.iter_tracks())
+    n_particles = 0
+    for track in reader.iter_tracks():
+        n_particles += 1
+        if visit is not None:
+            visit(track)
     return Tracks.streaming(lambda: _Reader(path, **read_options).iter_tracks(),
                             path=reader.path, n_particles=n_particles, n_rows=reader.n_rows,
                             has_momentum=reader.has_momentum)

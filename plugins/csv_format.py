@@ -68,12 +68,8 @@ class CsvExporter:
     requires = ()
 
     def write(self, result, directory, options) -> list[str]:
-        written = []
-        for stem, table in result.tables().items():
-            file_name = f"{stem}.csv"
-            table.to_csv(pathlib.Path(directory) / file_name, index=False)
-            written.append(file_name)
-        return written
+        return result.write_tables(directory, ".csv",
+                                   lambda table, path: table.to_csv(path, index=False))
 
 
 @lagfield.hookimpl

@@ -86,13 +86,10 @@ class ParquetExporter:
         import pyarrow as pa
         import pyarrow.parquet as pq
 
-        written = []
-        for stem, table in result.tables().items():
-            file_name = f"{stem}.parquet"
-            pq.write_table(pa.Table.from_pandas(table, preserve_index=False),
-                           pathlib.Path(directory) / file_name)
-            written.append(file_name)
-        return written
+        return result.write_tables(
+            directory, ".parquet",
+            lambda table, path: pq.write_table(pa.Table.from_pandas(table,
+                                                                    preserve_index=False), path))
 
 
 @lagfield.hookimpl
