@@ -21,11 +21,17 @@ from .tracks import Track, Tracks, open_tracks, read_tracks
 __version__ = "0.1.0"
 
 
-def run(path, **options) -> Signals:
-    """Run the job a run file describes; see `lagfield.runner.run`."""
+def run(source, **options) -> Signals:
+    """Run the job of a run file and return its tables (a Signals of pandas DataFrames).
+
+    source: the run file's path, or its content as a dict (relative paths then resolve
+    against base_dir=..., default the current directory). Options: write=False keeps the
+    tables in memory only; overwrite, workers, scheduler, progress(done, total) and
+    registry as described in `lagfield.runner.run`.
+    """
     from .runner import run as _run
 
-    return _run(path, **options)
+    return _run(source, **options)
 
 
 __all__ = [

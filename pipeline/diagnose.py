@@ -18,6 +18,7 @@ import numpy as np
 from scipy import constants
 
 from .tracks import iter_tracks
+from .wording import plural
 
 STEP_FRACTION = 0.25  # largest step / formation time (common practice)
 MIN_TURN_RAD = 1e-9  # smaller turns per step count as straight motion
@@ -72,6 +73,18 @@ def inspect_tracks(path, **read_options) -> dict:
         "n_problems": len(problems),
         "problems": problems[:MAX_LISTED],
     }
+
+
+def inspect_run(run_file, **overrides) -> dict:
+    """`inspect_tracks` of the track file a run file names, read with the run's [tracks]
+    format, columns, units, charge and tolerances; `overrides` (e.g. format, charge,
+    registry) take precedence. The report also names the run file."""
+    from .config import load
+
+    tracks = load(run_file).tracks
+    options = {k: v for k, v in tracks.read_options().items() if v is not None}
+    report = inspect_tracks(tracks.path, **{**options, **overrides})
+    return {"run_file": str(run_file), **report}
 
 
 def _analyse(track) -> dict:
@@ -158,10 +171,11 @@ def format_report(report: dict) -> str:
     """The report of `inspect_tracks` as readable terminal text."""
     spp, span, gamma = (report["samples_per_particle"], report["time_span_s"],
                         report["lorentz_factor"])
-    lines = [
+    lines = [f"run file: {report['run_file']}"] if "run_file" in report else []
+    lines += [
         f"track file: {report['path']}",
-        f"particles: {report['n_particles']} ({report['n_rows']} rows; momentum columns "
-        f"{'ux, uy, uz present' if report['has_momentum'] else 'absent'})",
+        f"particles: {report['n_particles']} ({plural(report['n_rows'], 'row')}; momentum "
+        f"columns {'ux, uy, uz present' if report['has_momentum'] else 'absent'})",
         f"samples per particle: min {spp['min']}, median {spp['median']:g}, max {spp['max']}",
         f"time span: {span['start']:.6g} s to {span['stop']:.6g} s "
         f"({_si(span['stop'] - span['start'], 's')})",
@@ -182,17 +196,19 @@ def format_report(report: dict) -> str:
         f"{_si(bend['radius_m'], 'm')}, Lorentz factor {bend['gamma']:.4g}, critical "
         f"frequency {_si(bend['critical_frequency_hz'], 'Hz')}")
     lines.append(f"highest critical frequency: {_si(report['max_critical_frequency_hz'], 'Hz')}"
-                 f" ({report['n_bent']} bent, {report['n_straight']} straight tracks)")
+                 f" ({plural(report['n_bent'], 'bent track')}, "
+                 f"{plural(report['n_straight'], 'straight track')})")
     rule = (f"steps at most {report['step_fraction']:g} of the formation time rho/(c gamma), "
             "common practice")
     if report["resolved"]:
         lines.append(f"sampling: resolves every bend ({rule}).")
     else:
-        lines.append(f"sampling: {report['n_problems']} track(s) too coarse ({rule}):")
+        lines.append(f"sampling: {plural(report['n_problems'], 'track')} too coarse ({rule}):")
         lines.extend(f"  {p['message']}" for p in report["problems"])
         hidden = report["n_problems"] - len(report["problems"])
         if hidden > 0:
-            lines.append(f"  ... and {hidden} more track(s) like these.")
+            lines.append(f"  ... and {plural(hidden, 'more track')} like "
+                         f"{'this' if hidden == 1 else 'these'}.")
     return "\n".join(lines)
 
 

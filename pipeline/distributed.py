@@ -5,20 +5,58 @@ Each worker reads its own chunk (a range of particle ids) from the track file; o
 observer groups, the time grids and the settings travel with a task, and only partial
 field arrays come back. A worker that dies is replaced and its tasks are recomputed by
 Dask. Needs the optional extra: pip install "lagfield[dask]".
+
+The checks of a worker count and a scheduler address are here too, shared by the run file
+and the command line; importing this module stays light (the engine loads in the tasks).
 """
 
 from __future__ import annotations
 
+import contextlib
 import copy
 import logging
+import numbers
+import signal
+import threading
+import urllib.parse
 
 import numpy as np
 
-from .engine import add_results, compute_fields
-from .errors import LagfieldError
+from .errors import ConfigError, LagfieldError
 
 CONNECT_TIMEOUT_S = 10.0
 TASK_RETRIES = 3
+SCHEDULER_SCHEMES = ("tcp", "tls", "ucx", "ws", "wss")  # Dask's network protocols
+
+
+def check_workers(value, where: str) -> int:
+    """A number of local worker processes: a whole number >= 1 (a ConfigError naming
+    `where`, e.g. "--workers" or "[compute] workers", otherwise)."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral) or value < 1:
+        raise ConfigError(f"{where}: expected a whole number of worker processes >= 1, "
+                          f"got {value!r}")
+    return int(value)
+
+
+def check_scheduler_address(text, where: str) -> str:
+    """A Dask scheduler address, SCHEME://HOST:PORT (HOST:PORT means tcp), returned
+    stripped; a ConfigError naming `where` otherwise. Checks the form only: whether a
+    scheduler listens there is found out when connecting."""
+    address = text.strip() if isinstance(text, str) else ""
+    parts = None
+    if address:
+        parts = urllib.parse.urlsplit(address if "://" in address else f"tcp://{address}")
+    try:
+        port = parts.port if parts is not None else None
+    except ValueError:  # not a number, or out of range
+        port = None
+    if (parts is None or parts.scheme not in SCHEDULER_SCHEMES or not parts.hostname
+            or port is None or port == 0 or parts.path not in ("", "/") or parts.query
+            or parts.fragment):
+        raise ConfigError(f"{where}: {text!r} is not a scheduler address; expected "
+                          f"SCHEME://HOST:PORT such as tcp://head-node:8786 (SCHEME one of "
+                          f"{', '.join(SCHEDULER_SCHEMES)})")
+    return address
 
 
 def particle_chunks(particle_ids, chunk: int):
@@ -32,6 +70,7 @@ def chunk_fields(path, read_options, particle_range, groups, settings, spectrum,
     """One task: read the particles of `particle_range` and return their GroupFields."""
     import numba
 
+    from .engine import compute_fields
     from .tracks import read_tracks
 
     numba.set_num_threads(1)  # one core per worker process
@@ -41,6 +80,8 @@ def chunk_fields(path, read_options, particle_range, groups, settings, spectrum,
 
 def _sum(first, second):
     """A new sum of two partial results (task inputs must stay untouched for retries)."""
+    from .engine import add_results
+
     return add_results(copy.deepcopy(first), second)
 
 
@@ -48,7 +89,7 @@ def connect(workers: int | None = None, scheduler: str | None = None):
     """A dask.distributed Client: to `scheduler`, or on a new local cluster of `workers`
     processes. Clear errors when Dask is missing or the scheduler cannot be reached."""
     try:
-        from dask.distributed import Client, LocalCluster
+        from dask.distributed import Client
     except ImportError:
         raise LagfieldError("distributed runs need Dask: pip install \"lagfield[dask]\"") \
             from None
@@ -59,9 +100,37 @@ def connect(workers: int | None = None, scheduler: str | None = None):
             raise LagfieldError(f"cannot reach the Dask scheduler at {scheduler} within "
                                 f"{CONNECT_TIMEOUT_S:g} s ({type(exc).__name__}: {exc})") \
                 from None
-    cluster = LocalCluster(n_workers=int(workers or 1), threads_per_worker=1, processes=True,
-                           dashboard_address=None, silence_logs=logging.ERROR)
-    return Client(cluster)
+    # A client that makes its own local cluster also closes it when it closes. Failures of
+    # tasks come back as exceptions here; the workers' own log lines (heartbeats lost while
+    # a cluster closes after Ctrl-C) would only be noise on the terminal.
+    with _interrupts_ignored():
+        return Client(n_workers=int(workers or 1), threads_per_worker=1, processes=True,
+                      dashboard_address=":0",  # any free port
+                      silence_logs=logging.CRITICAL, preload=[__name__])  # see dask_setup
+
+
+# Ctrl-C at a terminal reaches the whole process group; only lagfield's own process should
+# answer it (one line, then it closes the cluster), not every worker with a traceback.
+# Workers started by `connect` inherit an ignored SIGINT (the one setting that survives
+# exec); workers Dask restarts later ignore it from their preload, `dask_setup`.
+@contextlib.contextmanager
+def _interrupts_ignored():
+    """SIGINT ignored meanwhile (Ctrl-C during the few seconds of a cluster's start is
+    lost), when called from the main thread (elsewhere: nothing changes)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGINT, previous)
+
+
+def dask_setup(worker) -> None:
+    """Run by Dask in every local worker process as it starts (`preload`): ignore SIGINT."""
+    if threading.current_thread() is threading.main_thread():
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
 
 
 def compute_distributed(client, path, read_options, particle_ids, groups, settings, *,

@@ -16,8 +16,9 @@ import numpy as np
 from scipy import constants
 
 from .errors import LagfieldError, ObserverError
+from .fluence import FluenceAccumulator
 from .kernels import deposit, sampling
-from .motion import Motion
+from .motion import Motion, checked_motion
 from .retarded import retarded_time
 from .spectra import SAMPLES_PER_PERIOD, SpectrumAccumulator
 
@@ -44,6 +45,7 @@ class FieldSettings:
     degree: int = 5
     extend: str = "ballistic"
     smoothing_m: float = 0.0
+    u_offset_s: float | None = None  # momenta sampled at t + u_offset_s (None: each track's)
     max_frequency_hz: float | None = None  # top frequency of the spectra, when asked
 
     def resolution_s(self) -> float:
@@ -67,6 +69,8 @@ class GroupFields:
     e_v_per_m: np.ndarray
     b_t: np.ndarray
     spectra: object = None
+    fluence: object = None  # fluence.FluenceAccumulator: exact ε0c∫|E|²dt
+    source_samples: int = 0  # source-time samples used, summed over particles
 
     def times(self, point: int) -> np.ndarray:
         return self.start_s[point] + self.step_s * np.arange(self.n_bins[point])
@@ -99,7 +103,8 @@ def time_window(group, ends, settings: FieldSettings):
     else:
         start = np.full(group.n_points, settings.start_s)
     stop = latest if settings.stop_s is None else np.full(group.n_points, settings.stop_s)
-    n_bins = np.floor((stop - start) / step * (1.0 + 1e-12) + 1e-9).astype(np.int64) + 1
+    bins = np.floor((stop - start) / step * (1.0 + 1e-12) + 1e-9)
+    n_bins = np.minimum(bins, 2.0**62).astype(np.int64) + 1  # no overflow: budget.py refuses
     return start, np.maximum(n_bins, 1)
 
 
@@ -261,10 +266,13 @@ class FieldAccumulator:
             self.far = (directions, distance, group.origin_m)
         self._pending = []
         self._pending_samples = 0
+        self.source_samples = 0
         self.spectra = None
         if spectrum is not None:
             stop_s = start_s + (n_bins - 1) * settings.step_s
             self.spectra = SpectrumAccumulator(group, start_s, stop_s, spectrum, self.far)
+        self.fluence = FluenceAccumulator(group, start_s, start_s + (n_bins - 1) * settings.step_s,
+                                          self.far, spectrum is None or spectrum.coherent)
 
     def add(self, motion: Motion) -> None:
         edge_lo = self.edge0
@@ -275,8 +283,10 @@ class FieldAccumulator:
         scale = motion.track.charge_c * motion.track.weight
         if self.spectra is not None:
             self.spectra.add(t, state, motion.track.charge_c, motion.track.weight)
+        self.fluence.add(t, state, motion.track.charge_c, motion.track.weight)
         self._pending.append((t, state, scale))
         self._pending_samples += t.size
+        self.source_samples += t.size
         if self._pending_samples >= SAMPLES_PER_KERNEL_CALL:
             self.flush()
 
@@ -305,7 +315,8 @@ class FieldAccumulator:
         step = self.settings.step_s
         e = self.integrals[:, :, :3] * (COULOMB / step)
         b = self.integrals[:, :, 3:] * (COULOMB / (C * step))
-        return GroupFields(self.group, step, self.start_s, self.n_bins, e, b, self.spectra)
+        return GroupFields(self.group, step, self.start_s, self.n_bins, e, b, self.spectra,
+                           self.fluence, source_samples=self.source_samples)
 
 
 class TrackEnds:
@@ -319,8 +330,8 @@ class TrackEnds:
     def add(self, track) -> None:
         self._t_first.append(track.t_s[0])
         self._t_last.append(track.t_s[-1])
-        self._r_first.append(track.position_m[0])
-        self._r_last.append(track.position_m[-1])
+        self._r_first.append(track.position_m[0].copy())  # a view would keep the whole
+        self._r_last.append(track.position_m[-1].copy())  # track's positions alive
         self._ids.append(track.particle)
 
     def ends(self):
@@ -355,7 +366,9 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, en
     the tracks, and their spectra when `spectrum` (SpectrumSettings) is given.
     `tracks` is an iterable of Track. The time grids come from `windows` (see
     `group_windows`), else from `ends` (see `track_ends`), else from the tracks themselves
-    (a second pass). progress(n) is called after each particle."""
+    (a second pass). progress(1) is called for each particle in each group, as it is done
+    (so len(tracks) × len(groups) calls in all)."""
+    path = getattr(tracks, "path", None)  # the track file, for errors
     if windows is None:
         if ends is None:
             tracks = list(tracks)
@@ -364,13 +377,13 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, en
     accumulators = [FieldAccumulator(group, start, n_bins, settings, spectrum)
                     for group, (start, n_bins) in zip(groups, windows, strict=True)]
     for track in tracks:
-        motion = Motion(track, degree=settings.degree, extend=settings.extend,
-                        smoothing_m=settings.smoothing_m)
-        motion.check_speed()
+        motion = checked_motion(track, settings.resolution_s(), path=path,
+                                degree=settings.degree, extend=settings.extend,
+                                smoothing_m=settings.smoothing_m, u_offset_s=settings.u_offset_s)
         for accumulator in accumulators:
             accumulator.add(motion)
-        if progress is not None:
-            progress(1)
+            if progress is not None:
+                progress(1)
     return [accumulator.result() for accumulator in accumulators]
 
 
@@ -383,4 +396,7 @@ def add_results(first, second):
         if a.spectra is not None:
             a.spectra.spectrum += b.spectra.spectrum
             a.spectra.fluence += b.spectra.fluence
+        if a.fluence is not None:
+            a.fluence.merge(b.fluence)
+        a.source_samples += b.source_samples
     return first

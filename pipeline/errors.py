@@ -18,6 +18,11 @@ class UnitError(ConfigError):
     """A unit string that cannot be read, or one of the wrong dimension."""
 
 
+class DetectorError(ConfigError):
+    """A detector cannot be built or run: a bad `[[detectors]]` entry, a file it reads
+    (impulse response, Touchstone) that is wrong, or a step too coarse for its band or rate."""
+
+
 class TrackError(LagfieldError):
     """A track file is unreadable or its content is physically impossible.
 

@@ -6,6 +6,10 @@ the built-in CSV, Parquet and plot plugins come in through the same door.
 
 Arguments are passed by keyword. An implementation may accept fewer arguments than the
 specification, so new arguments can be added to a hook without breaking old plugins.
+
+A plugin whose import or registration hook raises (``SystemExit`` included; not
+``KeyboardInterrupt``), or that returns objects lacking what is listed below, is reported
+by ``lagfield plugins`` and stops only a run that selects it.
 """
 
 from __future__ import annotations
@@ -31,14 +35,32 @@ def lagfield_register_importers():
     - ``can_read(path) -> bool``: a cheap check (suffix, magic bytes or the first line;
       never the whole file) that the file at ``path`` (``pathlib.Path``) is of this format.
     - ``read(path, options) -> pandas.DataFrame``: the table with its columns as they are
-      in the file (raw names and units). ``options`` is the ``[tracks]`` table of the run
-      file as a dict (``columns`` and ``units`` included, for information). Column mapping,
-      unit conversion, sorting and validation are done by lagfield for every importer.
+      in the file (raw names and units; a name the file repeats stays repeated, so that
+      lagfield can report it). ``options`` is the ``[tracks]`` table of the run file as a
+      dict (``columns`` and ``units`` included, for information). Column mapping, unit
+      conversion, sorting and validation are done by lagfield for every importer. Anything
+      but a DataFrame is reported as a fault of the importer.
     - ``iter_batches(path, options) -> iterator of pandas.DataFrame`` (optional): the same
       table in pieces, for files larger than memory; rows keep the file's order. When
       ``options["particle_range"]`` is ``(low, high)`` it may leave out pieces that hold no
       particle id in that range (a distributed worker reads only its own particles); a
       piece then says where it starts with ``frame.attrs["first_row"]`` (data row from 1).
+
+    Momenta sampled at other times than positions: a frame may carry
+    ``frame.attrs["u_offset_s"]`` (float, seconds): ux, uy, uz of a row were sampled at
+    t + u_offset_s (a staggered pusher writes them half a step off). Every piece that gives
+    it must give the same value. lagfield records it as ``Tracks.u_offset_s`` (None when no
+    frame gives it).
+
+    Errors: raise ``lagfield.TrackError`` (with ``path``, ``column``, ``row`` where known)
+    for a file that is not what it should be; it reaches the user unchanged. Any other
+    exception from ``can_read``, ``read`` or ``iter_batches`` (``SystemExit`` included) is
+    reported as a ``lagfield.PluginError`` naming the importer and its distribution.
+    ``KeyboardInterrupt`` is never caught.
+
+    When the run names no format, the importer claiming the file's suffix reads it; when a
+    built-in importer (distribution ``lagfield``) and another claim the same suffix, the
+    built-in does. When none claims it, the first importer whose ``can_read`` says yes does.
     """
 
 
@@ -55,7 +77,10 @@ def lagfield_register_exporters():
     - ``write(result, directory, options) -> list of str``: write files for ``result`` (a
       ``lagfield.Signals``: the ``observers``, ``fields`` and, when computed, ``spectra``
       pandas DataFrames in SPEC units, and ``summary``, a dict) into ``directory``
-      (``pathlib.Path``, a fresh temporary directory that lagfield renames into place when
-      every exporter has succeeded). ``options`` is the run file's ``[plugins.<name>]``
-      table (a dict, empty when absent). Return the names of the files written.
+      (``pathlib.Path``, a staging directory whose files lagfield moves into place when
+      every exporter has succeeded; sub-directories are allowed). ``options`` is the run
+      file's ``[plugins.<name>]`` table (a dict, empty when absent). Return a list of the
+      names written, relative to ``directory``. Each exporter gets its own copy of
+      ``result``; it must not change files another exporter wrote, nor use the names
+      ``run.json`` or ``.lagfield*``. Any exception becomes a PluginError naming it.
     """

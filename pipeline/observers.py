@@ -50,12 +50,34 @@ class ObserverGroup:
         return frame
 
 
-def _unit(vector, what: str, name: str) -> np.ndarray:
-    vector = np.asarray(vector, dtype=float)
-    norm = np.linalg.norm(vector)
-    if norm == 0.0:
-        raise ObserverError(f"observer group '{name}': plane vector {what} is zero")
-    return vector / norm
+PERPENDICULAR_TOLERANCE = 1e-6  # largest |û·v̂| of a plane's axes; beyond it, an error
+
+
+def plane_axes(u, v) -> tuple[np.ndarray, np.ndarray]:
+    """The unit vectors (û, v̂) of a plane's axes u, v (3,), or a ValueError saying in plain
+    words what is wrong (a zero or non-finite vector, axes not perpendicular)."""
+    axes = []
+    for what, vector in (("u", u), ("v", v)):
+        vector = np.asarray(vector, dtype=float)
+        scale = np.max(np.abs(vector)) if vector.size else 0.0
+        if not (np.isfinite(scale) and scale > 0.0):
+            raise ValueError(f"plane {what} = {vector.tolist()} has no direction")
+        vector = vector / scale  # no underflow in the norm of a tiny vector
+        axes.append(vector / np.linalg.norm(vector))
+    cosine = float(abs(axes[0] @ axes[1]))
+    if cosine > PERPENDICULAR_TOLERANCE:
+        raise ValueError(f"plane u and v are not perpendicular (|cos| of their angle is "
+                         f"{cosine:.3g}, more than {PERPENDICULAR_TOLERANCE:g})")
+    return axes[0], axes[1]
+
+
+def point_count(config) -> int:
+    """Number of points of the group an ObserverConfig describes (without building it)."""
+    if config.kind == "points":
+        return len(config.points_m)
+    if config.kind == "plane":
+        return int(config.shape[0]) * int(config.shape[1])
+    return int(config.theta_rad[2]) * int(config.phi_rad[2])
 
 
 def build_group(config) -> ObserverGroup:
@@ -68,11 +90,10 @@ def build_group(config) -> ObserverGroup:
         return ObserverGroup(config.name, "points", points, origin)
     center = np.asarray(config.center_m, dtype=float)
     if config.kind == "plane":
-        u = _unit(config.u, "u", config.name)
-        v = _unit(config.v, "v", config.name)
-        if np.linalg.norm(np.cross(u, v)) < 1e-9:
-            raise ObserverError(f"observer group '{config.name}': plane vectors u and v are "
-                                "parallel")
+        try:
+            u, v = plane_axes(config.u, config.v)
+        except ValueError as exc:
+            raise ObserverError(f"observer group '{config.name}': {exc}") from None
         n_u, n_v = config.shape
         a = np.linspace(-0.5, 0.5, n_u) * config.size_m[0] if n_u > 1 else np.zeros(1)
         b = np.linspace(-0.5, 0.5, n_v) * config.size_m[1] if n_v > 1 else np.zeros(1)

@@ -3,23 +3,25 @@ the fields (and spectra), assemble SPEC's tables and hand them to the exporters.
 
 from __future__ import annotations
 
-import os
-import platform
 import time
+from collections.abc import Mapping
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from . import __version__
 from . import config as config_module
+from .budget import check_memory
+from .distributed import check_scheduler_address, check_workers
 from .engine import FieldSettings, TrackEnds, compute_fields, group_windows
 from .errors import ConfigError
+from .fluence import fluence_table
 from .observers import build_group
-from .outputs import SAFETY_NOTE, check_target, sha256, write_results
+from .outputs import guarded, open_output, result_bytes
 from .registry import get_registry
 from .signals import Signals
 from .spectra import SpectrumSettings, frequency_list
+from .summary import run_summary
 from .tracks import open_tracks
 
 FIELD_COLUMNS = ["Ex", "Ey", "Ez", "Bx", "By", "Bz"]
@@ -56,22 +58,71 @@ def settings_from(config):
     return fields, spectrum
 
 
-def run(path, *, overwrite: bool = False, write: bool = True, workers: int | None = None,
-        scheduler: str | None = None, progress=None, registry=None) -> Signals:
-    """Run the job described by the run file at `path`; returns the tables as a Signals
-    (pandas DataFrames) and, when `write`, writes them to [output] dir through the
-    exporters. `progress(n)` is called as particles complete."""
+def load_run(source, base_dir=None):
+    """(RunConfig, path of the run file or None) of `source`: a run file's path, or its
+    content as a dict (as tomllib reads it), whose relative paths resolve against
+    `base_dir` (default: the current directory)."""
+    if isinstance(source, Mapping):
+        base = Path.cwd() if base_dir is None else Path(base_dir)
+        return config_module.parse(dict(source), base_dir=base.resolve()), None
+    if base_dir is not None:
+        raise ConfigError("base_dir applies to a run given as a dict; the paths in a run "
+                          "file are relative to the run file")
+    return config_module.load(source), Path(source)
+
+
+def placement(workers, scheduler, compute) -> tuple:
+    """(workers, scheduler) of a run, at most one of them set: values given here (the
+    command line's) override the run file's [compute]."""
+    if workers is not None and scheduler is not None:
+        raise ConfigError("give either workers or a scheduler address, not both")
+    if workers is not None:
+        return check_workers(workers, "workers"), None
+    if scheduler is not None:
+        return None, check_scheduler_address(scheduler, "scheduler")
+    if compute.workers is not None and compute.scheduler is not None:
+        raise ConfigError("[compute]: give either workers or scheduler, not both")
+    return compute.workers, compute.scheduler
+
+
+def _counter(progress, total: int):
+    """An advance(n) callback that reports progress(done, total), or None."""
+    if progress is None:
+        return None
+    done = 0
+    progress(done, total)
+
+    def advance(n: int) -> None:
+        nonlocal done
+        done += n
+        progress(done, total)
+
+    return advance
+
+
+@guarded  # the output directory is released (and its lock) however the run ends
+def run(source, *, base_dir=None, overwrite: bool = False, write: bool = True,
+        workers: int | None = None, scheduler: str | None = None, progress=None,
+        registry=None) -> Signals:
+    """Run the job of a run file and return its tables as a Signals (pandas DataFrames);
+    when `write`, also write them to [output] dir through the exporters.
+
+    source: the run file's path, or its content as a dict, whose relative paths then
+    resolve against `base_dir` (default: the current directory).
+    workers (local processes) or scheduler (a Dask scheduler address) override the run
+    file's [compute]; give at most one.
+    progress(done, total): called as the fields advance, counting particles × observer
+    groups (a particle done for one group is one unit).
+    """
     started = time.perf_counter()
     timings = {}
-    config = config_module.load(path)
+    config, run_file = load_run(source, base_dir)
+    workers, scheduler = placement(workers, scheduler, config.compute)
     registry = registry or get_registry()
-    exporters = [registry.exporter(name) for name in config.output.formats] if write else []
-    if write:
-        check_target(config.output.dir, overwrite)
+    exporters = [registry.exporter_info(name) for name in config.output.formats] if write else []
+    target = open_output(config.output.dir, overwrite=overwrite) if write else None
     groups = [build_group(observer) for observer in config.observers]
-    options = dict(format=config.tracks.format, columns=config.tracks.columns,
-                   units=config.tracks.units, charge=config.tracks.charge_c,
-                   min_samples=config.motion.degree + 1, u_tolerance=config.tracks.u_tolerance,
+    options = dict(config.tracks.read_options(), min_samples=config.motion.degree + 1,
                    registry=registry)
     collected = TrackEnds()  # gathered during the validation pass: no pass of its own
     tracks = open_tracks(config.tracks.path, visit=collected.add, **options)
@@ -79,46 +130,36 @@ def run(path, *, overwrite: bool = False, write: bool = True, workers: int | Non
     timings["read_s"] = time.perf_counter() - started
     settings, spectrum = settings_from(config)
     windows = group_windows(groups, ends, settings)
-    workers = workers if workers is not None else config.compute.workers
-    scheduler = scheduler if scheduler is not None else config.compute.scheduler
-    if workers is not None and scheduler is not None:
-        raise ConfigError("give either workers or a scheduler address, not both")
+    check_memory(groups, windows, settings, spectrum)  # before any grid is allocated
+    if target is not None:  # a full disk is found before the computation
+        target.check_space(result_bytes(windows, config.spectrum.count if config.spectrum
+                                        else 0, config.output.formats))
+    advance = _counter(progress, len(tracks) * len(groups))
     t0 = time.perf_counter()
     if workers is None and scheduler is None:
         results = compute_fields(tracks, groups, settings, spectrum=spectrum,
-                                 windows=windows, progress=progress)
+                                 windows=windows, progress=advance)
     else:
         from .distributed import compute_distributed, connect
 
         read_options = {k: v for k, v in options.items() if k != "registry"}
+        per_chunk = None if advance is None else (lambda n: advance(n * len(groups)))
         with connect(workers, scheduler) as client:
             results = compute_distributed(client, config.tracks.path, read_options,
                                           particle_ids, groups, settings, spectrum=spectrum,
                                           windows=windows, chunk=config.compute.chunk,
-                                          progress=progress)
+                                          progress=per_chunk)  # n particles of a chunk
     timings["compute_s"] = time.perf_counter() - t0
     observers = pd.concat([group.table() for group in groups], ignore_index=True)
     spectra = None
     if spectrum is not None:
         spectra = pd.concat([r.spectra.table() for r in results], ignore_index=True)
-    signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra)
-    warnings = [f"plugin '{b.name}' ({b.distribution}) could not be loaded: {b.error}"
-                for b in registry.broken]
+    signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra,
+                      fluence=fluence_table(results))
     timings["total_s"] = time.perf_counter() - started
-    signals.summary = {
-        "program": "lagfield", "version": __version__,
-        "python": platform.python_version(),
-        "run_file": str(Path(path)), "run": config.raw,
-        "inputs": {str(config.tracks.path): {"sha256": sha256(config.tracks.path)},
-                   str(Path(path)): {"sha256": sha256(Path(path))}},
-        "particles": len(tracks), "observer_groups": [g.name for g in groups],
-        "warnings": warnings, "timings": timings,
-        "environment": {k: v for k, v in os.environ.items() if k.startswith("LAGFIELD_")},
-        "note": SAFETY_NOTE,
-        "output_dir": str(config.output.dir) if write else None,
-    }
-    signals.summary["files"] = []
-    if write:
-        signals.summary["files"] = write_results(signals, config.output.dir, exporters,
-                                                 config.plugins, overwrite=overwrite)
+    signals.summary = run_summary(run_file, config, tracks=tracks, results=results,
+                                  registry=registry, exporters=exporters, timings=timings,
+                                  output=target)
+    if target is not None:
+        target.commit(signals, exporters, config.plugins)
     return signals

@@ -17,6 +17,8 @@ class Signals:
     fields: observer, point, t (s), Ex, Ey, Ez (V/m), Bx, By, Bz (T).
     spectra: observer, point, f (Hz), E*_re/E*_im (V·s/m, coherent runs), fluence
         (J/(m²·Hz)), dW_df_dOmega (J/(Hz·sr), spheres); None when no [spectrum] was asked.
+    fluence: observer, point, fluence ε0c∫|E|²dt over the window (J/m²), dW_dOmega (J/sr,
+        spheres: R² × fluence), method (str: how it was obtained, see lagfield.fluence).
     summary: a dict of run facts (version, run file, checksums, warnings, timings).
     """
 
@@ -24,12 +26,15 @@ class Signals:
     fields: pd.DataFrame
     spectra: pd.DataFrame | None = None
     summary: dict = dataclasses.field(default_factory=dict)
+    fluence: pd.DataFrame | None = None
 
     def tables(self) -> dict[str, pd.DataFrame]:
         """The tables that exist, by their file stem ("observers", "fields", "spectra")."""
         out = {"observers": self.observers, "fields": self.fields}
         if self.spectra is not None:
             out["spectra"] = self.spectra
+        if self.fluence is not None:
+            out["fluence"] = self.fluence
         return out
 
     def __getitem__(self, name: str) -> pd.DataFrame:

@@ -22,6 +22,7 @@ from .kernels import pointwise, quadrature
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
 NUFFT_TOLERANCE = 1e-9
+NUFFT_UPSAMPLING = 1.25  # finufft upsampfac (see _nufft_plan); budget.py sizes its grid
 DIRECT_SUM_LIMIT = 2_000_000  # samples × frequencies below which a direct sum is used
 COULOMB = 1.0 / (4.0 * math.pi * constants.epsilon_0)
 
@@ -65,7 +66,7 @@ def _nufft_plan(n_vectors: int):
     import finufft
 
     return finufft.Plan(3, 1, n_trans=n_vectors, eps=NUFFT_TOLERANCE, isign=-1, nthreads=1,
-                        upsampfac=1.25)
+                        upsampfac=NUFFT_UPSAMPLING)
 
 
 def window_spectrum(t_obs_s, e_v_per_m, start_s, stop_s, frequencies_hz, taper="none"):
@@ -105,17 +106,9 @@ class SpectrumAccumulator:
         self.fluence = np.zeros((group.n_points, n_f))
 
     def add(self, t, state, charge_c: float, weight: float) -> None:
-        pos, beta, inv_g2, beta_dot = state
-        t_obs = np.empty(t.size)
-        e = np.empty((t.size, 3))
+        t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
         for p in range(self.group.n_points):
-            if self.far is None:
-                pointwise.fields_near(t, pos, beta, inv_g2, beta_dot, self.group.points_m[p],
-                                      t_obs, e)
-            else:
-                directions, distance, origin = self.far
-                pointwise.fields_far(t, pos, beta, inv_g2, beta_dot, directions[p],
-                                     distance[p], origin, t_obs, e)
+            pointwise.point_fields(t, state, p, self.group.points_m, self.far, t_obs, e, kappa)
             single = window_spectrum(t_obs, e * (COULOMB * charge_c), self.start_s[p],
                                      self.stop_s[p], self.settings.frequencies_hz,
                                      self.settings.taper)

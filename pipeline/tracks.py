@@ -13,17 +13,21 @@ bucketed by particle id and read back bucket by bucket. Either way only about on
 
 from __future__ import annotations
 
+import collections
 import dataclasses
 import math
+import os
 import pathlib
+import stat
 import tempfile
-from collections.abc import Iterator, Mapping, Sequence
+from collections.abc import Iterable, Iterator, Mapping, Sequence
 
 import numpy as np
 from scipy import constants
 
-from .errors import LagfieldError, TrackError, UnitError
-from .units import unit_factor
+from .errors import PluginError, TrackError, UnitError
+from .registry import contained
+from .units import to_si, unit_factor
 
 REQUIRED_COLUMNS = ("particle", "t", "x", "y", "z")
 MOMENTUM_COLUMNS = ("ux", "uy", "uz")
@@ -35,6 +39,8 @@ DIMENSIONS = {"particle": None, "t": "time", "x": "length", "y": "length", "z": 
 BUCKET_ROWS = 1_000_000  # rows held in memory at once when a file must be re-partitioned
 _ROW = "row"  # internal column: data row in the file, from 1, header excluded
 _NAN_SPELLINGS = {"nan", "-nan", "+nan", "inf", "-inf", "+inf", "infinity", "-infinity"}
+INT64_MAX = np.iinfo(np.int64).max
+EXACT_FLOAT_INT = 2**53  # every integer up to this magnitude is exact in a float64
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -44,6 +50,7 @@ class Track:
     t_s: (n,) source times, strictly increasing.  position_m: (n, 3).
     u: (n, 3) normalized momentum γβ, or None when the file has none.
     charge_c: charge of one physical particle.  weight: physical particles it stands for.
+    The arrays are the track's own (never views of a larger batch of rows).
     """
 
     particle: int
@@ -52,6 +59,7 @@ class Track:
     u: np.ndarray | None
     charge_c: float
     weight: float = 1.0
+    u_offset_s: float | None = None  # ux, uy, uz were sampled at t + u_offset_s (None: 0)
 
     @property
     def n_samples(self) -> int:
@@ -64,10 +72,16 @@ class Tracks(Sequence):
     Built by `read_tracks` it holds every `Track`, sorted by particle id. Built by
     `open_tracks` it holds none: iteration and `iter_chunks` stream them from the file
     again (ascending id within each batch of the file; indexing reads them all once).
+
+    importer: which importer read them, "name (distribution version)", or None.
+    u_offset_s: the importer's offset of the momentum samples (ux, uy, uz sampled at
+    t + u_offset_s), or None when the importer gave none.
     """
 
-    def __init__(self, tracks, *, path=None, n_rows=None, has_momentum=None):
+    def __init__(self, tracks, *, path=None, n_rows=None, has_momentum=None, importer=None,
+                 u_offset_s=None):
         self.path = pathlib.Path(path) if path is not None else None
+        self.importer, self.u_offset_s = importer, u_offset_s
         self._stream = None
         self._tracks = sorted(tracks, key=lambda tr: tr.particle)
         self.n_particles = len(self._tracks)
@@ -77,9 +91,10 @@ class Tracks(Sequence):
                              else any(tr.u is not None for tr in self._tracks))
 
     @classmethod
-    def streaming(cls, stream, *, path, n_particles, n_rows, has_momentum) -> Tracks:
-        """Tracks that call `stream()` for a fresh iterator of Track on every pass."""
-        tracks = cls((), path=path, n_rows=n_rows, has_momentum=has_momentum)
+    def streaming(cls, stream, *, n_particles, **facts) -> Tracks:
+        """Tracks that call `stream()` for a fresh iterator of Track on every pass; `facts`
+        are the keyword arguments of the constructor (path, n_rows, ...)."""
+        tracks = cls((), **facts)
         tracks._tracks, tracks._stream, tracks.n_particles = None, stream, int(n_particles)
         return tracks
 
@@ -123,9 +138,11 @@ def read_tracks(path, *, format=None, columns=None, units=None, charge=None, min
     """Read and validate every track of the file at `path` (all held in memory).
 
     format: importer name (default: the one claiming the file's suffix).
-    columns: canonical name -> column name in the file.  units: canonical name -> unit
-    string of that column.  charge: C per physical particle when the file has no charge
-    column.  min_samples: fewest samples a particle may have (spline degree + 1).
+    columns: canonical name -> column name in the file (a canonical name whose own name
+    another one is mapped to is not read under that name).  units: canonical name -> unit
+    string of that column.  charge: per physical particle when the file has no charge
+    column, in C or as a string with a unit ("-1 e").  min_samples: fewest samples a
+    particle may have (spline degree + 1).
     u_tolerance: largest relative difference allowed between the speed |u| implies and the
     chord speed of the positions.  options: further [tracks] keys, passed to the importer.
     particle_range: (low, high) reads only the particles with low <= id <= high.
@@ -135,8 +152,7 @@ def read_tracks(path, *, format=None, columns=None, units=None, charge=None, min
                      min_samples=min_samples, u_tolerance=u_tolerance, registry=registry,
                      options=options, particle_range=particle_range)
     tracks = list(reader.iter_tracks())
-    return Tracks(tracks, path=reader.path, n_rows=reader.n_rows,
-                  has_momentum=reader.has_momentum)
+    return Tracks(tracks, **reader.facts())
 
 
 def open_tracks(path, *, visit=None, **read_options) -> Tracks:
@@ -151,8 +167,7 @@ def open_tracks(path, *, visit=None, **read_options) -> Tracks:
         if visit is not None:
             visit(track)
     return Tracks.streaming(lambda: _Reader(path, **read_options).iter_tracks(),
-                            path=reader.path, n_particles=n_particles, n_rows=reader.n_rows,
-                            has_momentum=reader.has_momentum)
+                            n_particles=n_particles, **reader.facts())
 
 
 def iter_tracks(path, *, bucket_rows=BUCKET_ROWS, **read_options) -> Iterator[Track]:
@@ -177,18 +192,27 @@ class _Reader:
         if not u_tolerance > 0:
             raise ValueError(f"u_tolerance must be positive, got {u_tolerance}")
         self.min_samples, self.u_tolerance = int(min_samples), float(u_tolerance)
-        self.default_charge_c = None if charge is None else float(charge)
+        self.default_charge_c = (None if charge is None
+                                 else to_si(charge, "charge", where="[tracks] charge"))
         self.bucket_rows = int(bucket_rows)
-        self.names = self._mapping(columns or {}, "columns")
+        self.names = self._file_names(self._mapping(columns or {}, "columns"))
         self.factors = {canon: self._factor(canon, unit)
                         for canon, unit in self._mapping(units or {}, "units").items()}
         self.options = dict(options or {}, format=format, columns=dict(columns or {}),
-                            units=dict(units or {}), charge=charge,
+                            units=dict(units or {}), charge=self.default_charge_c,
                             particle_range=self.particle_range)
-        self.importer = self._importer(format, registry)
+        _check_file(self.path)
+        self.info = self._importer(format, registry)
+        self.importer = self.info.plugin
         self.n_rows = 0
         self.has_momentum = False
+        self.u_offset_s = None
         self._present = None  # canonical columns found in the file
+
+    def facts(self) -> dict:
+        """What a pass has learnt about the file, as keyword arguments of Tracks."""
+        return dict(path=self.path, n_rows=self.n_rows, has_momentum=self.has_momentum,
+                    importer=self.info.label, u_offset_s=self.u_offset_s)
 
     # -- set-up ---------------------------------------------------------------------
     def _mapping(self, mapping: Mapping, key: str) -> dict:
@@ -198,6 +222,19 @@ class _Reader:
                              f"the canonical names are {', '.join(CANONICAL_COLUMNS)}",
                              path=self.path)
         return {str(k): str(v) for k, v in mapping.items()}
+
+    def _file_names(self, mapping: dict) -> dict:
+        """Canonical name -> the file column read for it, or None. Mapped names win over
+        the default ones: with t = "x", the file column 'x' is t and x is not read."""
+        claimed = {}
+        for canon, name in mapping.items():
+            if name in claimed:
+                raise TrackError(f"[tracks] columns maps both '{claimed[name]}' and '{canon}' "
+                                 f"to the file column '{name}'; a column can stand for one "
+                                 "quantity only", path=self.path, column=name)
+            claimed[name] = canon
+        return {canon: mapping.get(canon, None if canon in claimed else canon)
+                for canon in CANONICAL_COLUMNS}
 
     def _factor(self, canon: str, unit: str) -> float:
         dimension = DIMENSIONS[canon]
@@ -214,40 +251,67 @@ class _Reader:
         if registry is None:
             from .registry import get_registry
             registry = get_registry()
-        if not self.path.is_file():
-            raise TrackError("track file not found", path=self.path)
-        if self.path.stat().st_size == 0:
-            raise TrackError("the track file is empty (0 bytes)", path=self.path)
-        importer = (registry.importer(format) if format
-                    else registry.importer_for(self.path))
-        if not importer.can_read(self.path):
+        info = registry.importer_info(format) if format else registry.importer_for(self.path)
+        if info is None:
+            known = ", ".join(sorted(registry.importers)) or "none"
+            raise TrackError("no importer recognises the file by its ending "
+                             f"('{self.path.suffix}') or its content (installed: {known}); "
+                             "check the file or set [tracks] format", path=self.path)
+        with contained(info, f"checking whether it can read {self.path}"):
+            readable = info.plugin.can_read(self.path)
+        if not readable:
             claim = (f"[tracks] format = '{format}'" if format
                      else f"the name ending '{self.path.suffix}'")
-            raise TrackError(f"the file is not a {importer.name} file, as {claim} says "
-                             f"({importer.description}); check the file or set "
+            raise TrackError(f"the file is not a {info.name} file, as {claim} says "
+                             f"({info.plugin.description}); check the file or set "
                              "[tracks] format", path=self.path)
-        return importer
+        return info
 
     # -- reading ----------------------------------------------------------------------
     def _raw_batches(self):
-        """The importer's raw tables, with importer failures turned into TrackError."""
+        """The importer's raw tables, checked; its failures become one PluginError."""
         batches = getattr(self.importer, "iter_batches", None)
-        try:
-            if batches is None:
-                yield self.importer.read(self.path, self.options)
-            else:
-                yield from batches(self.path, self.options)
-        except LagfieldError:
-            raise
-        except Exception as exc:
-            raise TrackError(f"cannot read the file as {self.importer.name}: "
-                             f"{type(exc).__name__}: {exc}", path=self.path) from None
+        method = "read" if batches is None else "iter_batches"
+        with contained(self.info, f"reading {self.path}"):
+            frames = ([self.importer.read(self.path, self.options)] if batches is None
+                      else batches(self.path, self.options))
+            if not isinstance(frames, Iterable):
+                self._fault(f"{method} returned {type(frames).__name__}, not an iterator "
+                            "of pandas DataFrames")
+            for frame in frames:
+                self._check_frame(frame, method)
+                yield frame
+
+    def _fault(self, what: str):
+        raise PluginError(f"{self.info.quoted} is faulty: {what} (reading {self.path}; "
+                          "see lagfield.hookspecs)")
+
+    def _check_frame(self, frame, method):
+        import pandas as pd
+
+        if not isinstance(frame, pd.DataFrame):
+            self._fault(f"{method} gave {type(frame).__name__}, not a pandas DataFrame")
+        first_row = frame.attrs.get("first_row", 1)
+        if isinstance(first_row, bool) or not isinstance(first_row, int | np.integer) \
+                or first_row < 1:
+            self._fault(f"frame.attrs['first_row'] is {first_row!r}, not a row number >= 1")
+        offset = frame.attrs.get("u_offset_s")
+        if offset is None:
+            return
+        if isinstance(offset, bool) or not isinstance(offset, int | float | np.number) \
+                or not math.isfinite(offset):
+            self._fault(f"frame.attrs['u_offset_s'] is {offset!r}, not a finite number "
+                        "of seconds")
+        if self.u_offset_s is not None and float(offset) != self.u_offset_s:
+            self._fault(f"frame.attrs['u_offset_s'] changes between pieces "
+                        f"({self.u_offset_s!r} s, then {float(offset)!r} s)")
+        self.u_offset_s = float(offset)
 
     def _batches(self, particle_only=False):
         """Canonical SI columns (dict of arrays, `row` included) of each batch."""
         first_row = 1
         for frame in self._raw_batches():
-            first_row = frame.attrs.get("first_row", first_row)
+            first_row = int(frame.attrs.get("first_row", first_row))
             n = len(frame)
             if self._present is None:
                 self._present = self._check_columns(frame)
@@ -264,21 +328,32 @@ class _Reader:
 
     def _check_columns(self, frame) -> tuple:
         found = [str(c) for c in frame.columns]
+        counts = collections.Counter(found)
+        for name in (self.names[canon] for canon in CANONICAL_COLUMNS):
+            if name is not None and counts[name] > 1:
+                raise TrackError(f"the file has {counts[name]} columns named '{name}'; "
+                                 "rename or remove all but one (or map another name with "
+                                 "[tracks] columns)", path=self.path, column=name)
+        present = [c for c in CANONICAL_COLUMNS if self.names[c] in counts]
+
         def label(canon):
-            name = self.names.get(canon, canon)
+            name = self._name(canon)
             return f"'{name}'" + (f" (for '{canon}')" if name != canon else "")
         for canon in REQUIRED_COLUMNS:
-            if self.names.get(canon, canon) not in found:
-                raise TrackError(f"required column {label(canon)} is missing; the file has "
-                                 f"{', '.join(found) or 'no columns'} (map names with "
-                                 "[tracks] columns)", path=self.path,
-                                 column=self.names.get(canon, canon))
-        momentum = [c for c in MOMENTUM_COLUMNS if self.names.get(c, c) in found]
+            if canon in present:
+                continue
+            taken = ("" if self.names[canon] is not None else
+                     f"; the file column '{canon}' is read as '{self._claimant(canon)}' "
+                     f"([tracks] columns), so map '{canon}' to a column of its own")
+            raise TrackError(f"required column {label(canon)} is missing; the file has "
+                             f"{', '.join(found) or 'no columns'} (map names with "
+                             f"[tracks] columns){taken}", path=self.path,
+                             column=self._name(canon))
+        momentum = [c for c in MOMENTUM_COLUMNS if c in present]
         if momentum and len(momentum) < 3:
             absent = [label(c) for c in MOMENTUM_COLUMNS if c not in momentum]
             raise TrackError(f"ux, uy, uz must be given all three or none; "
                              f"{', '.join(absent)} missing", path=self.path)
-        present = [c for c in CANONICAL_COLUMNS if self.names.get(c, c) in found]
         if "charge" not in present and self.default_charge_c is None:
             raise TrackError("the file has no charge column; set [tracks] charge (C per "
                              "physical particle, e.g. -1.602176634e-19 for electrons)",
@@ -286,51 +361,79 @@ class _Reader:
         self.has_momentum = bool(momentum)
         return tuple(present)
 
-    def _canonical(self, frame, first_row, particle_only) -> dict:
-        import pandas as pd
+    def _claimant(self, canon):
+        """The canonical name whose mapping reads the file column named `canon`."""
+        return next(c for c in CANONICAL_COLUMNS if self.names[c] == canon)
 
+    def _canonical(self, frame, first_row, particle_only) -> dict:
         rows = np.arange(first_row, first_row + len(frame), dtype=np.int64)
         out = {_ROW: rows}
         for canon in ("particle",) if particle_only else self._present:
-            name = self.names.get(canon, canon)
+            name = self.names[canon]
             raw = frame[name]
-            values = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=np.float64,
-                                                                   na_value=np.nan)
+            if raw.dtype.kind in "bmM":  # booleans, dates, durations: no quantity of ours
+                raise TrackError(f"the column holds {raw.dtype} values, not numbers",
+                                 path=self.path, column=name, particle=_at(out.get("particle"), 0),
+                                 row=int(rows[0]))
+            values = _floats(raw)
             nonnumeric = np.isnan(values) & raw.notna().to_numpy()
             if nonnumeric.any():
                 spelled = raw[nonnumeric].astype(str).str.strip().str.lower()
                 nonnumeric[nonnumeric] = ~spelled.isin(_NAN_SPELLINGS).to_numpy()
+            ids = out.get("particle")
             if nonnumeric.any():
                 i = int(np.argmax(nonnumeric))
                 raise TrackError(f"value {raw.iloc[i]!r} is not a number", path=self.path,
-                                 column=name, particle=self._particle_at(frame, i),
-                                 row=int(rows[i]))
+                                 column=name, particle=_at(ids, i), row=int(rows[i]))
             bad = ~np.isfinite(values)
             if bad.any():
                 i = int(np.argmax(bad))
-                what = "empty or NaN" if np.isnan(values[i]) else "infinite"
+                what = ("empty or NaN" if np.isnan(values[i]) else
+                        "infinite or beyond the floating-point range (±1.8e308)")
                 raise TrackError(f"value is {what}", path=self.path, column=name,
-                                 particle=self._particle_at(frame, i), row=int(rows[i]))
+                                 particle=_at(ids, i), row=int(rows[i]))
             if canon == "particle":
-                ids = np.rint(values)
-                if (ids != values).any():
-                    i = int(np.argmax(ids != values))
-                    raise TrackError(f"particle id {values[i]:g} is not an integer",
-                                     path=self.path, column=name, row=int(rows[i]))
-                if raw.dtype.kind in "iu":
-                    out[canon] = raw.to_numpy(dtype=np.int64)
-                else:
-                    out[canon] = ids.astype(np.int64)
+                out[canon] = self._ids(raw, values, rows, name)
             else:
-                out[canon] = values * self.factors.get(canon, 1.0)
+                with np.errstate(over="ignore"):
+                    out[canon] = values * self.factors.get(canon, 1.0)
+                beyond = ~np.isfinite(out[canon])
+                if beyond.any():
+                    i = int(np.argmax(beyond))
+                    raise TrackError(f"value {values[i]:g} is beyond the floating-point "
+                                     "range once converted to SI units", path=self.path,
+                                     column=name, particle=_at(ids, i), row=int(rows[i]))
         return out
 
-    def _particle_at(self, frame, i):
-        import pandas as pd
-
-        name = self.names.get("particle", "particle")
-        value = pd.to_numeric(frame[name].iloc[i:i + 1], errors="coerce").iloc[0]
-        return int(value) if np.isfinite(value) and value == int(value) else None
+    def _ids(self, raw, values, rows, name) -> np.ndarray:
+        """The particle column as int64, or a TrackError for an id that is no integer or
+        does not fit (never a silent wrap-around that would merge particles)."""
+        kind = raw.dtype.kind
+        if kind == "i":
+            return raw.to_numpy(dtype=np.int64)
+        if kind == "u":
+            bad = raw.to_numpy(dtype=np.uint64) > np.uint64(INT64_MAX)
+            if bad.any():
+                i = int(np.argmax(bad))
+                raise TrackError(f"particle id {raw.iloc[i]} does not fit a 64-bit signed "
+                                 f"integer (at most {INT64_MAX})", path=self.path,
+                                 column=name, row=int(rows[i]))
+            return raw.to_numpy(dtype=np.int64)
+        fraction = np.rint(values) != values
+        large = np.abs(values) >= EXACT_FLOAT_INT
+        bad = fraction | large
+        if bad.any():
+            i = int(np.argmax(bad))
+            if fraction[i]:
+                why = "is not an integer"
+            elif abs(values[i]) > INT64_MAX:
+                why = f"does not fit a 64-bit signed integer (at most {INT64_MAX})"
+            else:
+                why = ("is 2**53 or beyond, where floating-point numbers skip integers, so "
+                       "distinct ids could merge; write the ids as integers, not floats")
+            raise TrackError(f"particle id {values[i]:.17g} {why}", path=self.path,
+                             column=name, row=int(rows[i]))
+        return values.astype(np.int64)
 
     # -- streaming ----------------------------------------------------------------------
     def iter_tracks(self) -> Iterator[Track]:
@@ -427,11 +530,17 @@ class _Reader:
         self._check_steps(ids, t, rows, position, u)
         charge = self._per_particle(cols, "charge", starts, self.default_charge_c)
         weight = self._per_particle(cols, "weight", starts, 1.0)
-        return [Track(int(ids[s]), t[s:e], position[s:e], None if u is None else u[s:e],
-                      float(charge[k]), float(weight[k]))
+        # copies: a view would keep the whole batch of rows alive as long as the track
+        return [Track(int(ids[s]), t[s:e].copy(), position[s:e].copy(),
+                      None if u is None else u[s:e].copy(), float(charge[k]), float(weight[k]))
                 for k, (s, e) in enumerate(zip(starts.tolist(), ends.tolist(), strict=True))]
 
     def _check_steps(self, ids, t, rows, position, u):
+        # huge but finite values may overflow to inf below: they then fail a check, quietly
+        with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
+            self._check_speeds(ids, t, rows, position, u)
+
+    def _check_speeds(self, ids, t, rows, position, u):
         same = ids[1:] == ids[:-1]
         dt = np.diff(t)
         duplicate = same & (dt == 0)
@@ -440,8 +549,7 @@ class _Reader:
             raise TrackError(f"two samples at the same time (rows {rows[i]} and "
                              f"{rows[i + 1]})", path=self.path, column=self._name("t"),
                              particle=int(ids[i]), row=int(rows[i + 1]), time_s=float(t[i]))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            chord = np.linalg.norm(np.diff(position, axis=0), axis=1) / np.where(same, dt, 1)
+        chord = np.linalg.norm(np.diff(position, axis=0), axis=1) / np.where(same, dt, 1)
         c = constants.c
         too_fast = same & (chord >= c)
         if too_fast.any():
@@ -454,11 +562,10 @@ class _Reader:
         if u is None:
             return
         u2 = np.einsum("ij,ij->i", u, u)
-        beta = np.sqrt(u2 / (1.0 + u2))
+        beta = 1.0 / np.sqrt(1.0 + 1.0 / u2)  # |u|/√(1+u²), also for u² = 0 or inf
         mean = 0.5 * (beta[1:] + beta[:-1]) * c
-        with np.errstate(divide="ignore", invalid="ignore"):
-            rel = np.where(mean > 0, np.abs(chord - mean) / mean,
-                           np.where(chord > 0, np.inf, 0.0))
+        rel = np.where(mean > 0, np.abs(chord - mean) / mean,
+                       np.where(chord > 0, np.inf, 0.0))
         wrong = same & (rel > self.u_tolerance)
         if wrong.any():
             i = int(np.argmax(wrong))
@@ -490,7 +597,60 @@ class _Reader:
         return values[starts]
 
     def _name(self, canon):
-        return self.names.get(canon, canon)
+        return self.names[canon] or canon
+
+
+def _check_file(path: pathlib.Path) -> None:
+    """A TrackError unless `path` is a non-empty regular file that can be opened. Checked
+    with stat before anything opens it: opening a named pipe would wait for a writer."""
+    try:
+        info = os.stat(path)
+    except FileNotFoundError:
+        raise TrackError("track file not found", path=path) from None
+    except OSError as exc:
+        raise TrackError(f"cannot look at the track file: {exc.strerror}", path=path) from None
+    if stat.S_ISDIR(info.st_mode):
+        raise TrackError("this is a directory, not a track file; give the path of the "
+                         "file itself", path=path)
+    if stat.S_ISFIFO(info.st_mode):
+        raise TrackError("this is a named pipe (FIFO), not a track file: tracks are read "
+                         "more than once, so they must be a regular file", path=path)
+    if not stat.S_ISREG(info.st_mode):
+        raise TrackError("this is not a regular file (a device or socket?); give a track "
+                         "file", path=path)
+    if info.st_size == 0:
+        raise TrackError("the track file is empty (0 bytes)", path=path)
+    try:
+        with open(path, "rb"):
+            pass
+    except OSError as exc:
+        raise TrackError(f"cannot open the track file: {exc.strerror}", path=path) from None
+
+
+def _floats(raw) -> np.ndarray:
+    """A column as float64: NaN where it is no number, ±inf where an integer is beyond the
+    floating-point range (pandas raises for those)."""
+    import pandas as pd
+
+    try:
+        numbers = pd.to_numeric(raw, errors="coerce")
+    except OverflowError:
+        numbers = pd.Series([_float(v) for v in raw.tolist()], dtype=np.float64)
+    return numbers.to_numpy(dtype=np.float64, na_value=np.nan)
+
+
+def _float(value) -> float:
+    try:
+        return float(value)
+    except OverflowError:
+        return math.inf if value > 0 else -math.inf
+    except (TypeError, ValueError):
+        return math.nan
+
+
+def _at(ids, i):
+    """The particle id of row `i` when the ids are known, else None."""
+    return None if ids is None else int(ids[i])
 
 
 def _take(cols: dict, index) -> dict:

@@ -3,13 +3,17 @@ tabs or semicolons, recognised from the header line)."""
 
 from __future__ import annotations
 
+import contextlib
+import csv
 import pathlib
+import re
 
 import lagfield
 
 _HEAD_BYTES = 65536
 _DELIMITERS = (",", "\t", ";")
 BATCH_ROWS = 500_000
+_LINE = re.compile(r"line (\d+)")
 
 
 def _header_line(path: pathlib.Path) -> str | None:
@@ -32,6 +36,39 @@ def _delimiter(header: str) -> str | None:
     return None
 
 
+def _header_names(header: str, delimiter: str) -> list[str]:
+    """The column names as the header line spells them (pandas renames a repeated name
+    'x' to 'x.1'; lagfield must see the repetition to report it)."""
+    return next(csv.reader([header], delimiter=delimiter, skipinitialspace=True), [])
+
+
+def _unmangled(frame, names: list[str]):
+    """`frame` with the names pandas made unique put back as the header spells them."""
+    if len(names) == len(frame.columns) and len(set(names)) < len(names):
+        frame.columns = [name if str(column).startswith(f"{name}.") else column
+                         for name, column in zip(names, frame.columns, strict=True)]
+    return frame
+
+
+@contextlib.contextmanager
+def _as_track_errors(path):
+    """Parser failures of a malformed file as one TrackError naming the data row."""
+    import pandas as pd
+
+    try:
+        yield
+    except (pd.errors.ParserError, pd.errors.EmptyDataError) as exc:
+        text = str(exc).replace("Error tokenizing data. C error: ", "").strip()
+        line = _LINE.search(text)
+        row = int(line.group(1)) - 1 if line else None
+        raise lagfield.TrackError(f"not a well-formed delimited table: {text}", path=path,
+                                  row=row) from None
+    except UnicodeDecodeError as exc:
+        raise lagfield.TrackError(f"the text is not UTF-8 (it holds the byte "
+                                  f"0x{exc.object[exc.start]:02x}); save the file as UTF-8",
+                                  path=path) from None
+
+
 class CsvImporter:
     """Reads a delimited text table with a header line."""
 
@@ -44,20 +81,30 @@ class CsvImporter:
         header = _header_line(pathlib.Path(path))
         return header is not None and _delimiter(header) is not None
 
-    def _read_csv(self, path, **kwargs):
+    def _frames(self, path, chunksize=None):
+        """The table's pieces (one without chunksize), names as in the header."""
         import pandas as pd
 
-        delimiter = _delimiter(_header_line(pathlib.Path(path)) or "") or ","
-        return pd.read_csv(path, sep=delimiter, encoding="utf-8-sig", skipinitialspace=True,
-                           **kwargs)
+        header = _header_line(pathlib.Path(path)) or ""
+        delimiter = _delimiter(header) or ","
+        names = _header_names(header, delimiter)
+        with _as_track_errors(path), pd.read_csv(
+                path, sep=delimiter, encoding="utf-8-sig", skipinitialspace=True,
+                chunksize=chunksize or BATCH_ROWS) as reader:
+            for frame in reader if chunksize else [reader.read()]:
+                if not isinstance(frame.index, pd.RangeIndex):
+                    # pandas takes a first column without a header name as the index
+                    raise lagfield.TrackError(
+                        f"the data rows have more fields than the header's {len(names)} "
+                        "names", path=path, row=1)
+                yield _unmangled(frame, names)
 
     def read(self, path, options):
-        return self._read_csv(path)
+        (frame,) = self._frames(path)
+        return frame
 
     def iter_batches(self, path, options):
-        with self._read_csv(path, chunksize=int(options.get("batch_rows", BATCH_ROWS))
-                            ) as reader:
-            yield from reader
+        yield from self._frames(path, chunksize=int(options.get("batch_rows", BATCH_ROWS)))
 
 
 class CsvExporter:

@@ -3,6 +3,7 @@ files larger than memory can be streamed."""
 
 from __future__ import annotations
 
+import contextlib
 import pathlib
 
 import lagfield
@@ -12,11 +13,25 @@ MAGIC = b"PAR1"
 
 
 def _wanted_columns(schema_names, options) -> list[str] | None:
-    """The file columns lagfield can use (canonical or mapped names); None: all."""
+    """The file columns lagfield can use (canonical or mapped names); None: all. A name
+    the schema repeats is listed once: pyarrow then reads every column of that name, and
+    lagfield reports the repetition."""
     mapping = dict(options.get("columns") or {})
     names = {mapping.get(canon, canon) for canon in CANONICAL_COLUMNS}
-    wanted = [name for name in schema_names if name in names]
+    wanted = list(dict.fromkeys(name for name in schema_names if name in names))
     return wanted or None
+
+
+@contextlib.contextmanager
+def _as_track_errors(path):
+    """A file pyarrow cannot decode (corrupt, truncated) as one TrackError."""
+    import pyarrow as pa
+
+    try:
+        yield
+    except (pa.ArrowException, OSError) as exc:
+        raise lagfield.TrackError(f"not a readable Parquet file: {type(exc).__name__}: "
+                                  f"{str(exc).strip()}", path=path) from None
 
 
 class ParquetImporter:
@@ -40,14 +55,15 @@ class ParquetImporter:
     def read(self, path, options):
         import pyarrow.parquet as pq
 
-        schema = pq.read_schema(path)
-        return pq.read_table(path, columns=_wanted_columns(schema.names, options)).to_pandas()
+        with _as_track_errors(path), pq.ParquetFile(path) as parquet_file:
+            columns = _wanted_columns(parquet_file.schema_arrow.names, options)
+            return parquet_file.read(columns=columns).to_pandas()
 
     def iter_batches(self, path, options):
         import pyarrow.parquet as pq
 
         wanted = options.get("particle_range")
-        with pq.ParquetFile(path) as parquet_file:
+        with _as_track_errors(path), pq.ParquetFile(path) as parquet_file:
             columns = _wanted_columns(parquet_file.schema_arrow.names, options)
             id_column = dict(options.get("columns") or {}).get("particle", "particle")
             first_row = 1

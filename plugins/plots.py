@@ -1,6 +1,12 @@
 """Plot export: PNG figures of each observer group's waveforms, energy-fluence maps (planes
 and spheres) and, when spectra were computed, spectral fluence and band-fluence maps.
 
+The fluence maps show the run's `fluence` table (exact from the source motion where it can
+be) and say how it was obtained; without that table they fall back on the bin averages and
+say that this is a lower bound. Spheres are drawn on the plane of directions (θ cos φ,
+θ sin φ), each point's cell the sector it stands for. Spectra get a linear frequency axis
+when the run's spacing is linear, a log one when it is log.
+
 matplotlib is imported only inside `PlotExporter.write`, through its object-oriented
 Figure API with the Agg canvas, so importing this module (or listing plugins) stays light.
 The helpers that turn tables into grids need only NumPy and the pandas tables they get.
@@ -13,6 +19,7 @@ import difflib
 import math
 import pathlib
 import re
+import textwrap
 from typing import TYPE_CHECKING
 
 import numpy as np
@@ -29,7 +36,10 @@ OPTION_DEFAULTS = {"dpi": 120, "max_curves": 6, "band": None}
 WHERE = "[plugins.plots]"
 TIME_UNITS = (("s", 1.0), ("ms", 1e-3), ("µs", 1e-6), ("ns", 1e-9), ("ps", 1e-12),
               ("fs", 1e-15), ("as", 1e-18))
-DYNAMIC_RANGE = 1e-15  # spectra: lowest value shown, relative to the peak (common practice)
+NOISE_FLOOR = 1e-12  # log spectra show nothing below this fraction of the peak (common
+# practice: the quadrature and transforms leave noise some 1e-12 of the peak and below)
+NOISE_PERCENTILE = 1.0  # ... nor below this percentile of the positive values
+ARC_STEP_RAD = math.radians(3.0)  # sphere maps: azimuthal cells drawn as arcs of this step
 FREQUENCY_UNITS = (("PHz", 1e15), ("THz", 1e12), ("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3),
                    ("Hz", 1.0))
 
@@ -214,11 +224,9 @@ def time_step_s(fields_of_group: pd.DataFrame, summary: dict | None = None) -> f
 
 
 def point_fluence(fields_of_group: pd.DataFrame, step_s: float | None = None) -> pd.Series:
-    """Energy fluence ε0 c ∫|E|² dt (J/m²) of each point (a Series indexed by point).
-
-    Each sample is the field averaged over one step (SPEC), so the integral is the sum of
-    |E|² times the step.
-    """
+    """Energy fluence ε0 c step Σ|Ē|² (J/m²) of each point's bin averages Ē (a Series
+    indexed by point): ε0 c ∫|E|² dt where the step resolves the pulse, less elsewhere (the
+    square of an average is at most the average of the square)."""
     if step_s is None:
         step_s = time_step_s(fields_of_group)
     if step_s is None:
@@ -247,6 +255,24 @@ def band_fluence(spectra_of_group: pd.DataFrame, band_hz, column: str = "fluence
     return pd.Series(out, dtype=float)
 
 
+def fluence_by_point(fluence_of_group: pd.DataFrame | None, fields_of_group: pd.DataFrame,
+                     step_s: float | None):
+    """(fluence (J/m²), dW_dOmega (J/sr) or None, method) of a group's points, as Series by
+    point: from the run's fluence table when it has the group, else from the bin averages
+    (a lower bound where the step does not resolve the pulse); None when neither is known."""
+    if fluence_of_group is not None and len(fluence_of_group):
+        table = fluence_of_group.set_index("point").sort_index()
+        per_sr = None
+        if "dW_dOmega" in table.columns and table["dW_dOmega"].notna().all():
+            per_sr = table["dW_dOmega"].astype(float)
+        return table["fluence"].astype(float), per_sr, str(table["method"].iloc[0])
+    if step_s is None or not len(fields_of_group):
+        return None
+    from lagfield.fluence import METHOD_BINS
+
+    return point_fluence(fields_of_group, step_s), None, METHOD_BINS
+
+
 def values_on_grid(layout: GridLayout, values_by_point: pd.Series) -> np.ndarray:
     """(n_a, n_b) array of per-point values (NaN where a point has none)."""
     return values_by_point.reindex(layout.points.ravel()).to_numpy(dtype=float).reshape(
@@ -255,8 +281,9 @@ def values_on_grid(layout: GridLayout, values_by_point: pd.Series) -> np.ndarray
 
 def fluence_grid(observers_of_group: pd.DataFrame, fields_of_group: pd.DataFrame,
                  step_s: float | None = None):
-    """(a, b, fluence) of a plane or sphere group: plane: u_mm (n_u,), v_mm (n_v,);
-    sphere: theta_rad (n_theta,), phi_rad (n_phi,); fluence (n_a, n_b) in J/m²."""
+    """(a, b, fluence) of a plane or sphere group from its bin averages (see point_fluence):
+    plane: u_mm (n_u,), v_mm (n_v,); sphere: theta_rad (n_theta,), phi_rad (n_phi,);
+    fluence (n_a, n_b) in J/m²."""
     layout = grid_layout(observers_of_group)
     if layout is None:
         raise ValueError("these observers are not a plane or sphere grid")
@@ -264,6 +291,56 @@ def fluence_grid(observers_of_group: pd.DataFrame, fields_of_group: pd.DataFrame
     if layout.kind == "plane":
         return layout.a * 1e3, layout.b * 1e3, values
     return layout.a, layout.b, values
+
+
+def sphere_mesh(layout: GridLayout, values: np.ndarray):
+    """(x, y, c): the cells of a sphere grid projected on the plane of directions, x = θ cos φ,
+    y = θ sin φ (rad), for pcolormesh: x, y (n_θ + 1, m + 1) cell corners, c (n_θ, m).
+    A cell spans half-way to its neighbours in θ (clipped to [0, π]) and in φ; each φ cell
+    is split into arcs of at most ARC_STEP_RAD so that it is drawn as the sector it is."""
+    theta_edges = np.clip(_edges(layout.a), 0.0, math.pi)
+    phi_edges = _edges(layout.b)
+    pieces = max(1, math.ceil(float(np.max(np.diff(phi_edges))) / ARC_STEP_RAD))
+    fractions = np.arange(pieces) / pieces
+    fine = np.append((phi_edges[:-1, None] + np.diff(phi_edges)[:, None] * fractions).ravel(),
+                     phi_edges[-1])
+    x = theta_edges[:, None] * np.cos(fine)[None, :]
+    y = theta_edges[:, None] * np.sin(fine)[None, :]
+    return x, y, np.repeat(values, pieces, axis=1)
+
+
+def frequency_spacing(frequencies_hz, summary: dict | None = None) -> str:
+    """"linear" or "log": the run file's [spectrum] spacing when the summary has it, else
+    what the frequency list follows (equal steps or equal ratios); a list reaching 0 Hz is
+    linear."""
+    f = np.unique(np.asarray(frequencies_hz, dtype=float))
+    if f.size and f[0] <= 0.0:
+        return "linear"
+    spectrum = ((summary or {}).get("run") or {}).get("spectrum") or {}
+    frequencies = spectrum.get("frequencies") if isinstance(spectrum, dict) else None
+    declared = frequencies.get("spacing") if isinstance(frequencies, dict) else None
+    if declared in ("linear", "log"):
+        return declared
+    if f.size < 3:
+        return "log" if f.size == 2 and f[1] > 10 * f[0] else "linear"
+    steps = np.diff(f)
+    if np.allclose(steps, steps.mean(), rtol=1e-6, atol=0.0):
+        return "linear"
+    ratios = f[1:] / f[:-1]
+    if np.allclose(ratios, ratios.mean(), rtol=1e-6, atol=0.0):
+        return "log"
+    return "log" if f[-1] > 100 * f[0] else "linear"
+
+
+def log_floor(values) -> float | None:
+    """Lowest value a log axis shows: NOISE_FLOOR × the peak or the NOISE_PERCENTILE-th
+    percentile of the positive values, whichever is larger; None if none is positive."""
+    values = np.asarray(values, dtype=float)
+    positive = values[np.isfinite(values) & (values > 0)]
+    if not positive.size:
+        return None
+    return max(float(positive.max()) * NOISE_FLOOR,
+               float(np.percentile(positive, NOISE_PERCENTILE)))
 
 
 # ---------------------------------------------------------------------------------------
@@ -302,9 +379,10 @@ def _angle_unit(angles_rad: np.ndarray) -> tuple[str, float]:
     return ("mrad", 1e-3) if np.max(np.abs(angles_rad)) < 0.2 else ("°", math.pi / 180)
 
 
-def _vector(v) -> str:
+def _vector(v, scale: float = 0.0) -> str:
+    """"(x, y, z)" with components below 1e-9 of the largest one (or of `scale`) as 0."""
     v = np.asarray(v, dtype=float)
-    tiny = 1e-9 * float(np.max(np.abs(v))) if v.size else 0.0
+    tiny = 1e-9 * max(float(np.max(np.abs(v))) if v.size else 0.0, abs(scale))
     return "(" + ", ".join(f"{0.0 if abs(x) <= tiny else x:.4g}" for x in v) + ")"
 
 
@@ -371,7 +449,7 @@ def _sci(axis, which="y"):
     axis.ticklabel_format(axis=which, style="sci", scilimits=(-3, 4), useMathText=True)
 
 
-def plot_waveforms(name, observers_of_group, fields_of_group, layout, picks):
+def plot_waveforms(name, observers_of_group, fields_of_group, layout, picks, step_s=None):
     figure = _new_figure(8.0, 9.0)
     axes = figure.subplots(4, 1, sharex=True)
     chosen = fields_of_group[fields_of_group["point"].isin(picks)]
@@ -395,37 +473,39 @@ def plot_waveforms(name, observers_of_group, fields_of_group, layout, picks):
     shown = len(picks)
     total = fields_of_group["point"].nunique()
     note = f" ({shown} of {total} points)" if shown < total else ""
-    figure.suptitle(f"{name}: electric field waveforms{note}")
+    averaged = (f"\neach sample the average of E over a step of "
+                f"{_format_quantity(step_s, TIME_UNITS)}" if step_s else "")
+    figure.suptitle(f"{name}: electric field waveforms{note}{averaged}")
     handles, labels = axes[0].get_legend_handles_labels()
     figure.legend(handles, labels, loc="outside lower center", ncols=2, fontsize="small")
     return figure
 
 
 def _map_axes(ax, layout: GridLayout, values: np.ndarray, label: str, figure):
-    """Draw one map of per-point values on the layout's own coordinates."""
-    if layout.kind == "plane":
-        x, y = layout.a * 1e3, layout.b * 1e3
-        y_edges = _edges(y)
-        ax.set_xlabel("u (mm)")
-        ax.set_ylabel("v (mm)")
-    else:
-        t_unit, t_factor = _angle_unit(layout.a)
-        x = np.degrees(layout.b)
-        y_edges = np.clip(_edges(layout.a), 0.0, math.pi) / t_factor  # θ stays in [0, π]
-        ax.set_xlabel("azimuth φ (°)")
-        ax.set_ylabel(f"polar angle θ ({t_unit})")
+    """Draw one map of per-point values: a plane on its own (u, v) coordinates, a sphere on
+    the plane of directions (θ cos φ, θ sin φ), each cell the sector it stands for."""
     finite = values[np.isfinite(values)]
     top = float(finite.max()) if finite.size and finite.max() > 0 else 1.0
-    rows_along_y = values.T if layout.kind == "plane" else values  # C[i_y, i_x]
-    mesh = ax.pcolormesh(_edges(x), y_edges, rows_along_y, shading="flat", cmap="viridis",
-                         vmin=0.0, vmax=top)
-    if layout.kind == "sphere":  # ticks on the grid's own angles when there are few
-        if len(x) <= 12:
-            ax.set_xticks(x, [f"{value:.4g}" for value in x])
-        if len(layout.a) <= 12:
-            ax.set_yticks(layout.a / t_factor, [f"{v / t_factor:.4g}" for v in layout.a])
-    if layout.kind == "plane" and len(x) > 1 and len(y_edges) > 2:
+    if layout.kind == "plane":
+        x, y = layout.a * 1e3, layout.b * 1e3
+        mesh = ax.pcolormesh(_edges(x), _edges(y), values.T, shading="flat",  # C[i_v, i_u]
+                             cmap="viridis", vmin=0.0, vmax=top)
+        ax.set_xlabel("u (mm)")
+        ax.set_ylabel("v (mm)")
+        if len(x) > 1 and len(y) > 1:
+            ax.set_aspect("equal")
+    else:
+        t_unit, t_factor = _angle_unit(layout.a)
+        x, y, c = sphere_mesh(layout, values)
+        mesh = ax.pcolormesh(x / t_factor, y / t_factor, c, shading="flat", cmap="viridis",
+                             vmin=0.0, vmax=top)
+        ax.set_xlabel(f"θ cos φ ({t_unit})")
+        ax.set_ylabel(f"θ sin φ ({t_unit})")
         ax.set_aspect("equal")
+        theta = layout.a[:, None] * np.ones_like(layout.b)[None, :]
+        ax.plot((theta * np.cos(layout.b)).ravel() / t_factor,
+                (theta * np.sin(layout.b)).ravel() / t_factor, linestyle="none", marker=".",
+                markersize=2, color="white", alpha=0.6)  # the computed directions
     bar = figure.colorbar(mesh, ax=ax)
     bar.set_label(label)
     bar.formatter.set_useMathText(True)
@@ -441,48 +521,57 @@ def _geometry_note(layout: GridLayout) -> str:
         if layout.v_hat is not None:
             parts.append(f"v = {_vector(layout.v_hat)}")
         return ", ".join(parts)
-    return f"sphere of radius {layout.radius_m:.4g} m about {_vector(layout.center_m)} m"
+    center = _vector(layout.center_m, scale=layout.radius_m)
+    return (f"sphere of radius {layout.radius_m:.4g} m about {center} m; θ from +z, "
+            "φ from +x; dots: computed directions")
 
 
-def plot_map(name, layout: GridLayout, values: np.ndarray, what: str,
-             per_sr: np.ndarray | None = None):
-    """A plane map, or a sphere map with its per-solid-angle twin beside it."""
+def plot_map(name, layout: GridLayout, values: np.ndarray, what: str, note: str,
+             per_sr: np.ndarray | None = None, footer: str | None = None):
+    """A plane map, or a sphere map with its per-solid-angle twin beside it; `note` says
+    how the values were obtained, `footer` (the run's safety note) goes below."""
     panels = 1 if per_sr is None else 2
-    figure = _new_figure(6.0 * panels + 0.5, 5.2)
+    figure = _new_figure(6.0 * panels + 0.5, 5.6)
     axes = np.atleast_1d(figure.subplots(1, panels))
     _map_axes(axes[0], layout, values, f"{what} (J/m²)", figure)
     if per_sr is not None:
-        _map_axes(axes[1], layout, per_sr, "energy per solid angle (J/sr)", figure)
-        axes[0].set_title(what)
-        axes[1].set_title("R² × " + what)
-    figure.suptitle(f"{name}: {what}\n{_geometry_note(layout)}", fontsize="medium")
+        _map_axes(axes[1], layout, per_sr, "energy per solid angle R² × fluence (J/sr)",
+                  figure)
+        axes[0].set_title("per unit area at the sphere")
+        axes[1].set_title("per unit solid angle")
+    width = int(12 * (6.0 * panels + 0.5))  # characters of a medium-size title line
+    lines = [f"{name}: {what}", *textwrap.wrap(note, width),
+             *textwrap.wrap(_geometry_note(layout), width)]
+    figure.suptitle("\n".join(lines), fontsize="medium")
+    if footer:
+        figure.supxlabel("\n".join(textwrap.wrap(footer, int(width * 1.2))), fontsize="small",
+                         color="0.35")
     return figure
 
 
-def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks):
-    figure = _new_figure(8.0, 5.5)
+def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks, spacing="log"):
+    """Spectral fluence of the picked points; frequency axis linear or log as the run's
+    spacing, the log y axis cut at the numerical noise (see log_floor)."""
+    figure = _new_figure(8.0, 6.5)
     ax = figure.subplots()
     f_max = float(spectra_of_group["f"].max())
     f_unit, f_factor = pick_unit(f_max, FREQUENCY_UNITS)
-    positive_f = bool((spectra_of_group["f"] > 0).all())
-    any_positive, peak, floor = False, 0.0, math.inf
+    shown = []
     for point in picks:
         rows = spectra_of_group[spectra_of_group["point"] == point].sort_values("f")
         if rows.empty:
             continue
         values = rows["fluence"].to_numpy(dtype=float)
-        positive = values[values > 0]
-        if positive.size:
-            any_positive = True
-            peak, floor = max(peak, float(positive.max())), min(floor, float(positive.min()))
+        shown.append(values)
         ax.plot(rows["f"].to_numpy(dtype=float) / f_factor, values,
                 marker="o" if len(rows) < 3 else None, linewidth=1.0,
                 label=point_label(observers_of_group, point, layout))
-    if positive_f:
+    if spacing == "log" and bool((spectra_of_group["f"] > 0).all()):
         ax.set_xscale("log")
-    if any_positive:
+    floor = log_floor(np.concatenate(shown)) if shown else None
+    if floor is not None:
         ax.set_yscale("log")
-        ax.set_ylim(bottom=max(floor, peak * DYNAMIC_RANGE) / 2)
+        ax.set_ylim(bottom=floor)
     else:
         _sci(ax)
     ax.set_xlabel(f"frequency f ({f_unit})")
@@ -492,11 +581,20 @@ def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks):
         r2 = layout.radius_m ** 2
         right = ax.secondary_yaxis("right", functions=(lambda x: x * r2, lambda x: x / r2))
         right.set_ylabel("d²W/(df dΩ) = R² F (J/(Hz·sr))")
-    ax.legend(fontsize="small")
+    handles, labels = ax.get_legend_handles_labels()
+    figure.legend(handles, labels, loc="outside lower center", ncols=2, fontsize="small")
     total = spectra_of_group["point"].nunique()
     note = f" ({len(picks)} of {total} points)" if len(picks) < total else ""
-    ax.set_title(f"{name}: spectral fluence{note}")
+    ax.set_title(f"{name}: spectral fluence F = 2ε₀c|Ẽ(f)|²{note}")
     return figure
+
+
+def band_share(band: np.ndarray, total: np.ndarray) -> tuple[float, float] | None:
+    """(lowest, highest) band / total fluence over the points where the total is positive."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        share = band / total
+    share = share[np.isfinite(share) & (total > 0)]
+    return (float(share.min()), float(share.max())) if share.size else None
 
 
 # ---------------------------------------------------------------------------------------
@@ -530,9 +628,10 @@ class PlotExporter:
             spectra = result.spectra[result.spectra["observer"] == name]
             spectra = spectra if len(spectra) else None
         layout = grid_layout(observers, summary) if len(observers) > 1 else None
-        band = None
+        band, spacing = None, "log"
         if spectra is not None:
             f = np.unique(spectra["f"].to_numpy(dtype=float))
+            spacing = frequency_spacing(f, summary)
             band = settings.band_hz or (float(f.min()), float(f.max()))
             inside = int(np.count_nonzero((f >= band[0]) & (f <= band[1])))
             if settings.band_hz is not None and inside < 2:
@@ -542,26 +641,36 @@ class PlotExporter:
                     f"({f.min():g} to {f.max():g} Hz, {f.size} values); at least 2 are needed")
             if inside < 2:
                 band = None  # a single frequency: nothing to integrate over
+        table = getattr(result, "fluence", None)
+        step_s = time_step_s(fields, summary)
+        energy = fluence_by_point(None if table is None else table[table["observer"] == name],
+                                  fields, step_s)
         return dict(name=name, observers=observers, fields=fields, spectra=spectra,
-                    layout=layout, band=band, step_s=time_step_s(fields, summary))
+                    layout=layout, band=band, spacing=spacing, step_s=step_s, energy=energy,
+                    footer=summary.get("note"))
 
     def _draw(self, plan, directory, settings) -> list[str]:
-        name, layout = plan["name"], plan["layout"]
+        name, layout, energy = plan["name"], plan["layout"], plan["energy"]
         observers, fields, spectra = plan["observers"], plan["fields"], plan["spectra"]
         stem = safe_stem(str(name))
         picks = representative_points(observers["point"].to_numpy(), settings.max_curves)
         written = []
         if len(fields):
             present = [p for p in picks if p in set(fields["point"])]
-            figure = plot_waveforms(name, observers, fields, layout, present)
+            figure = plot_waveforms(name, observers, fields, layout, present, plan["step_s"])
             written.append(_save(figure, directory, f"{stem}_waveforms.png", settings.dpi))
-        if layout is not None and len(fields) and plan["step_s"] is not None:
-            values = values_on_grid(layout, point_fluence(fields, plan["step_s"]))
-            per_sr = values * layout.radius_m ** 2 if layout.kind == "sphere" else None
-            figure = plot_map(name, layout, values, "energy fluence ε₀c∫|E|²dt", per_sr)
+        total = None
+        if layout is not None and energy is not None:
+            fluence, per_sr, method = energy
+            total = values_on_grid(layout, fluence)
+            if layout.kind == "sphere":
+                per_sr = (values_on_grid(layout, per_sr) if per_sr is not None
+                          else total * layout.radius_m ** 2)
+            figure = plot_map(name, layout, total, "energy fluence ε₀c∫|E|²dt over the window",
+                              method, per_sr, plan["footer"])
             written.append(_save(figure, directory, f"{stem}_fluence_map.png", settings.dpi))
         if spectra is not None:
-            figure = plot_spectra(name, observers, spectra, layout, picks)
+            figure = plot_spectra(name, observers, spectra, layout, picks, plan["spacing"])
             written.append(_save(figure, directory, f"{stem}_spectrum.png", settings.dpi))
         if spectra is not None and layout is not None and plan["band"] is not None:
             band = plan["band"]
@@ -573,7 +682,12 @@ class PlotExporter:
                           else values * layout.radius_m ** 2)
             what = (f"fluence in {_format_quantity(band[0], FREQUENCY_UNITS)} – "
                     f"{_format_quantity(band[1], FREQUENCY_UNITS)}")
-            figure = plot_map(name, layout, values, what, per_sr)
+            note = "∫F df over the band (trapezoid rule on the computed frequencies)"
+            share = band_share(values, total) if total is not None else None
+            if share is not None:
+                note += (f"; band / total: {100 * share[0]:.3g}–{100 * share[1]:.3g}\u00a0% "
+                         f"(total: {energy[2]})")
+            figure = plot_map(name, layout, values, what, note, per_sr, plan["footer"])
             written.append(_save(figure, directory, f"{stem}_band_map.png", settings.dpi))
         return written
 

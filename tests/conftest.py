@@ -3,14 +3,26 @@ importers, and a helical electron track table written from formulas."""
 
 from __future__ import annotations
 
+import os
+
 import numpy as np
 import pandas as pd
 import pytest
+from hypothesis import HealthCheck, settings
 from scipy import constants
 
 from lagfield.registry import build_registry
 
 ELECTRON_CHARGE_C = -constants.e  # CODATA 2018, exact: -1.602176634e-19 C
+
+# Hypothesis profiles: "ci" (default) is reproducible and quick; "slow" explores more
+# (LAGFIELD_HYPOTHESIS_PROFILE=slow). Neither keeps an example database in the tree.
+settings.register_profile("ci", max_examples=10, derandomize=True, deadline=None,
+                          database=None, print_blob=True,
+                          suppress_health_check=[HealthCheck.too_slow])
+settings.register_profile("slow", max_examples=100, deadline=None, database=None,
+                          print_blob=True, suppress_health_check=[HealthCheck.too_slow])
+settings.load_profile(os.environ.get("LAGFIELD_HYPOTHESIS_PROFILE", "ci"))
 
 
 def helix_table(n_particles=3, n_samples=40, gamma=20.0, radius_m=0.1, span_s=1e-9,

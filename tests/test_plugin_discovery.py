@@ -13,10 +13,11 @@ import pandas as pd
 import pytest
 from scipy import constants
 
+import lagfield
 from lagfield.errors import PluginError, TrackError
 from lagfield.registry import build_registry
 from lagfield.signals import Signals
-from lagfield.tracks import read_tracks
+from lagfield.tracks import open_tracks, read_tracks
 
 ELECTRON_CHARGE_C = -constants.e  # CODATA 2018, exact: -1.602176634e-19 C
 FAKE_PLUGINS = pathlib.Path(__file__).parent / "fake_plugins"
@@ -126,7 +127,8 @@ def test_broken_plugins_are_reported_and_the_rest_work(site, tmp_path, monkeypat
     assert broken["brokenimport"].error.startswith("ImportError: this plugin needs")
     assert broken["brokenhook"].error == ("RuntimeError: the importer table could not be "
                                           "built")
-    assert "lacks can_read, read" in broken["half"].error
+    assert broken["half"].error == ("TypeError: importer HalfImporter 'half' lacks the "
+                                    "methods can_read, read")
     with pytest.raises(PluginError, match=r"importer 'brokenimport' \(lagfield-broken 0.1\) "
                                           r"failed to load: ImportError"):
         registry.importer("brokenimport")
@@ -171,3 +173,122 @@ def test_hook_lagfield_register_exporters(registry, tmp_path):
     assert names == ["summary.json"]
     assert json.loads((tmp_path / "summary.json").read_text()) == {
         "version": "0.1.0", "field_rows": 2, "note": "x"}
+
+
+# -- plugins contained: whatever a plugin does, one clear report naming it ----------------
+
+def test_plugin_exiting_at_import_or_in_its_hook_is_broken(site, monkeypatch, tmp_path, helix):
+    monkeypatch.syspath_prepend(str(FAKE_PLUGINS))
+    install_distribution(site, "lagfield-exits", {
+        "exitimport": "lagfield_fake_exit_import", "exithook": "lagfield_fake_exit_hook",
+        "stringext": "lagfield_fake_bad_extensions"})
+    registry = build_registry()
+    broken = {b.name: b for b in registry.broken}
+    assert broken["exitimport"].error == "SystemExit: this plugin refuses to load"
+    assert broken["exithook"].error == "SystemExit: 4"
+    assert "'extensions', a tuple of suffixes" in broken["stringext"].error
+    assert all(b.distribution == "lagfield-exits 0.1" for b in broken.values())
+    path = tmp_path / "tracks.csv"
+    helix(n_particles=1).to_csv(path, index=False)
+    assert len(read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)) == 1
+
+
+def test_interrupt_during_plugin_import_still_interrupts(site, monkeypatch):
+    monkeypatch.syspath_prepend(str(FAKE_PLUGINS))
+    install_distribution(site, "lagfield-slow", {"slow": "lagfield_fake_interrupt_import"})
+    with pytest.raises(KeyboardInterrupt):
+        build_registry()
+
+
+@pytest.fixture
+def misbehaving(site, monkeypatch):
+    """A registry with the built-ins and the importers of lagfield_fake_misbehaving,
+    installed as the distribution lagfield-misbehaving 0.1."""
+    monkeypatch.syspath_prepend(str(FAKE_PLUGINS))
+    install_distribution(site, "lagfield-misbehaving", {
+        "misbehaving": "lagfield_fake_misbehaving"})
+    return build_registry()
+
+
+@pytest.mark.parametrize(("format", "what"), [
+    ("raising", r"failed while reading .*beam\.fake: ValueError: column 7 of the binary"),
+    ("exiting", r"failed while reading .*beam\.fake: SystemExit: 2"),
+    ("list", r"is faulty: read gave list, not a pandas DataFrame"),
+    ("nobatches", r"is faulty: iter_batches returned NoneType, not an iterator"),
+    ("failingbatches", r"failed while reading .*: OSError: the network share went away"),
+    ("brokencheck", r"failed while checking whether it can read .*RuntimeError"),
+])
+def test_importer_failures_are_one_plugin_error(misbehaving, tmp_path, helix, format, what):
+    path = tmp_path / "beam.fake"
+    helix(n_particles=2).to_csv(path, index=False)
+    with pytest.raises(PluginError, match=rf"importer '{format}' \(lagfield-misbehaving "
+                                          rf"0\.1\) {what}"):
+        read_tracks(path, format=format, charge=ELECTRON_CHARGE_C, registry=misbehaving)
+
+
+def test_track_error_raised_by_an_importer_passes_unchanged(misbehaving, tmp_path, helix):
+    path = tmp_path / "beam.fake"
+    helix(n_particles=1).to_csv(path, index=False)
+    with pytest.raises(TrackError) as error:
+        read_tracks(path, format="deliberate", charge=ELECTRON_CHARGE_C,
+                    registry=misbehaving)
+    assert error.value.reason == "the record header says version 9; this reader knows 1-3"
+    assert error.value.row == 1 and error.value.path == path
+
+
+def test_built_in_importer_wins_a_shared_extension(misbehaving, tmp_path, helix):
+    import lagfield
+
+    path = tmp_path / "beam.csv"
+    helix(n_particles=2).to_csv(path, index=False)
+    tracks = read_tracks(path, charge=ELECTRON_CHARGE_C, registry=misbehaving)
+    assert tracks.importer == f"csv (lagfield {lagfield.__version__})"
+    named = open_tracks(path, format="csvtoo", charge=ELECTRON_CHARGE_C,
+                        registry=misbehaving)
+    assert named.importer == "csvtoo (lagfield-misbehaving 0.1)"
+    assert [tr.particle for tr in named] == [tr.particle for tr in tracks] == [0, 1]
+
+
+def test_extension_claimed_by_two_plugins_needs_a_format(misbehaving, tmp_path, helix):
+    path = tmp_path / "beam.fake"
+    helix(n_particles=1).to_csv(path, index=False)
+    with pytest.raises(PluginError, match=r"claimed by importer 'raising' "
+                                          r"\(lagfield-misbehaving 0\.1\) and .*format"):
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=misbehaving)
+
+
+def test_importer_momentum_offset_is_recorded(misbehaving, tmp_path, helix):
+    table = helix(n_particles=2)
+    path = tmp_path / "beam.half-step"
+    table.to_csv(path, index=False)
+    options = {"charge": ELECTRON_CHARGE_C, "registry": misbehaving}
+    for tracks in (read_tracks(path, **options), open_tracks(path, **options)):
+        assert tracks.u_offset_s == -5e-13 and tracks.importer.startswith("offset ")
+        assert [tr.particle for tr in tracks] == [0, 1]
+    plain = tmp_path / "beam.csv"
+    table.to_csv(plain, index=False)
+    assert read_tracks(plain, **options).u_offset_s is None
+
+
+def test_importer_whose_required_package_is_absent(tmp_path, helix):
+    class NeedsImporter:
+        name, description, extensions = "needs", "needs a package", (".needs",)
+        requires = ("lagfield_package_that_is_not_installed",)
+
+        def can_read(self, path):
+            return True
+
+        def read(self, path, options):
+            raise AssertionError("never called")
+
+    class Plugin:
+        @lagfield.hookimpl
+        def lagfield_register_importers(self):
+            return [NeedsImporter()]
+
+    registry = build_registry(autoload=False, extra_plugins=[("needs", Plugin())])
+    path = tmp_path / "beam.needs"
+    helix(n_particles=1).to_csv(path, index=False)
+    with pytest.raises(PluginError, match=r"importer 'needs' \(registered in-process\) needs "
+                                          r"the package 'lagfield_package_that_is_not_inst"):
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)

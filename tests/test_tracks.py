@@ -2,7 +2,9 @@
 
 from __future__ import annotations
 
+import os
 import tempfile
+import warnings
 
 import numpy as np
 import pandas as pd
@@ -369,3 +371,206 @@ def test_binary_in_a_csv_file(tmp_path, helix, registry):
 def test_missing_file(tmp_path, registry):
     with pytest.raises(TrackError, match="not found"):
         read_tracks(tmp_path / "nowhere.csv", charge=ELECTRON_CHARGE_C, registry=registry)
+
+
+# -- particle ids: integers that fit int64, or one error naming the row --------------------
+
+def write_ids(tmp_path, ids, name="ids.csv") -> str:
+    """Two samples per id, straight slow motion; `ids` spelled as given (strings)."""
+    lines = ["particle,t,x,y,z"]
+    for k, pid in enumerate(ids):
+        lines += [f"{pid},0.0,{k},0,0", f"{pid},1e-9,{k},0,0.1"]
+    path = tmp_path / name
+    path.write_text("\n".join(lines) + "\n")
+    return str(path)
+
+
+@pytest.mark.parametrize(("spelled", "reason"), [
+    ("1e+19", r"particle id 1e\+19 does not fit a 64-bit signed integer"),
+    ("10000000000000000000", r"particle id 10000000000000000000 does not fit"),
+    ("-100000000000000000000", r"does not fit a 64-bit signed integer"),
+    ("1.5", r"particle id 1.5 is not an integer"),
+    ("9007199254740993.0", r"2\*\*53 or beyond, where floating-point numbers skip"),
+    ("", r"value is empty or NaN"),
+    ("nan", r"value is empty or NaN"),
+])
+def test_particle_id_that_is_no_int64_is_an_error(tmp_path, registry, spelled, reason):
+    path = write_ids(tmp_path, ["0", "1", spelled])
+    with pytest.raises(TrackError, match=reason) as error:
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)
+    assert (error.value.column, error.value.row) == ("particle", 5)
+    assert path in str(error.value)
+
+
+def test_ids_written_as_whole_floats_are_accepted(tmp_path, registry):
+    tracks = read_tracks(write_ids(tmp_path, ["3.0", "-7.0", "1e3"]), charge=ELECTRON_CHARGE_C,
+                         registry=registry)
+    assert [tr.particle for tr in tracks] == [-7, 3, 1000]
+
+
+def test_large_integer_ids_stay_distinct(tmp_path, registry):
+    big = [2**63 - 1, 2**63 - 2, 2**53 + 1, 2**53]  # neighbours a float64 would merge
+    tracks = read_tracks(write_ids(tmp_path, [str(i) for i in big]), charge=ELECTRON_CHARGE_C,
+                         registry=registry)
+    assert [tr.particle for tr in tracks] == sorted(big)
+
+
+def test_unsigned_parquet_ids_beyond_int64(tmp_path, helix, registry):
+    table = helix(n_particles=2)
+    ids = np.where(table.particle == 1, 2**63, 5).astype(np.uint64)
+    path = tmp_path / "u64.parquet"
+    pq.write_table(pa.Table.from_pandas(table.assign(particle=ids)), path)
+    with pytest.raises(TrackError, match="does not fit") as error:
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)
+    assert error.value.row == 41  # helix rows: 40 of particle 0, then particle 1
+
+
+# -- duplicated columns, in the file or through the mapping --------------------------------
+
+def test_duplicated_csv_column(tmp_path, helix, registry):
+    path = tmp_path / "dup.csv"
+    helix(n_particles=1).rename(columns={"y": "x"}).to_csv(path, index=False)
+    assert path.read_text().startswith("particle,t,x,x,z,")
+    with pytest.raises(TrackError, match="the file has 2 columns named 'x'") as error:
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)
+    assert error.value.column == "x"
+
+
+def test_duplicated_parquet_column(tmp_path, helix, registry):
+    table = pa.Table.from_pandas(helix(n_particles=1), preserve_index=False)
+    names = ["particle", "t", "x", "y", "z", "ux", "ux", "uz"]  # uy stored as a second ux
+    path = tmp_path / "dup.parquet"
+    pq.write_table(table.rename_columns(names), path)
+    with pytest.raises(TrackError, match="2 columns named 'ux'") as error:
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)
+    assert error.value.column == "ux"
+
+
+def test_unused_duplicated_column_is_no_error(tmp_path, helix, registry):
+    table = helix(n_particles=1)
+    frame = pd.concat([table, pd.DataFrame({"note": 1, "note2": 2}, index=table.index)],
+                      axis=1).rename(columns={"note2": "note"})
+    path = tmp_path / "notes.csv"
+    frame.to_csv(path, index=False)
+    assert len(read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)) == 1
+
+
+def test_two_names_mapped_to_one_column(tmp_path, helix, registry):
+    error, message = read_bad(tmp_path, registry, helix(), columns={"x": "pos", "y": "pos"})
+    assert "maps both 'x' and 'y' to the file column 'pos'" in message
+
+
+def test_mapping_onto_another_canonical_name(tmp_path, helix, registry):
+    error, message = read_bad(tmp_path, registry, helix(), columns={"t": "x"})
+    assert error.column == "x" and "required column 'x' is missing" in message
+    assert "the file column 'x' is read as 't'" in message
+
+
+def test_mapped_name_wins_over_the_file_column_of_that_name(tmp_path, helix, registry):
+    table = helix(n_particles=1)
+    path = write_csv(table.assign(x_corrected=table.x + 0.5), tmp_path / "both.csv")
+    (track,) = read_tracks(path, columns={"x": "x_corrected"}, charge=ELECTRON_CHARGE_C,
+                           registry=registry)
+    np.testing.assert_array_equal(track.position_m[:, 0], table.x + 0.5)
+
+
+# -- what is given as a track file ----------------------------------------------------------
+
+def test_directory_given_as_track_file(tmp_path, registry):
+    folder = tmp_path / "tracks.csv"
+    folder.mkdir()
+    with pytest.raises(TrackError, match="is a directory"):
+        read_tracks(folder, charge=ELECTRON_CHARGE_C, registry=registry)
+
+
+def test_named_pipe_given_as_track_file_is_refused_without_opening_it(tmp_path, registry):
+    fifo = tmp_path / "tracks.csv"
+    os.mkfifo(fifo)  # opening it for reading would wait for a writer forever
+    with pytest.raises(TrackError, match=r"named pipe \(FIFO\)"):
+        open_tracks(fifo, charge=ELECTRON_CHARGE_C, registry=registry)
+
+
+def test_file_no_importer_recognises(tmp_path, registry):
+    path = tmp_path / "beam.dat"
+    path.write_bytes(bytes(range(256)) * 4)
+    with pytest.raises(TrackError, match=r"no importer recognises the file .*'\.dat'"):
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)
+
+
+def test_unclaimed_ending_is_read_by_content(tmp_path, helix, registry):
+    table = helix(n_particles=2)
+    text = write_csv(table, tmp_path / "beam.dat")
+    binary = tmp_path / "beam.bin"
+    pq.write_table(pa.Table.from_pandas(table), binary)
+    for path, name in ((text, "csv"), (binary, "parquet")):
+        tracks = read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)
+        assert tracks.importer == f"{name} (registered in-process)" and len(tracks) == 2
+
+
+# -- charge given with a unit; tracks that own their arrays ----------------------------------
+
+def test_charge_given_with_a_unit(tmp_path, helix, registry):
+    path = write_csv(helix(n_particles=2), tmp_path / "q.csv")
+    for tracks in (read_tracks(path, charge="-1 e", registry=registry),
+                   open_tracks(path, charge="-2 e", registry=registry)):
+        want = -constants.e * (1 if not tracks.streamed else 2)  # CODATA 2018, exact
+        assert [tr.charge_c for tr in tracks] == pytest.approx([want, want], rel=1e-15)
+    with pytest.raises(lagfield.UnitError, match="charge"):
+        read_tracks(path, charge="1 mm", registry=registry)
+
+
+def test_tracks_own_their_arrays(tmp_path, helix, registry):
+    """A track keeps no view of the batch it was cut from: keeping one track (or one
+    position of it) must not keep every row of the batch in memory."""
+    table = helix(n_particles=4, n_samples=30)
+    path = tmp_path / "own.parquet"
+    pq.write_table(pa.Table.from_pandas(table), path, row_group_size=50)
+    for tracks in (read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry),
+                   list(iter_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry))):
+        for track in tracks:
+            assert track.t_s.base is None and track.position_m.base is None
+            assert track.u.base is None and track.position_m.shape == (30, 3)
+
+
+# -- values at the ends of the floating-point range ------------------------------------------
+
+def test_integer_beyond_the_float_range(tmp_path, helix, registry):
+    table = helix(n_particles=2).astype({"y": object})
+    table.loc[52, "y"] = -(10**400)
+    error, message = read_bad(tmp_path, registry, table)
+    assert (error.column, error.particle, error.row) == ("y", 1, 53)
+    assert "beyond the floating-point range" in message
+
+
+@pytest.mark.parametrize(("column", "value", "reason"), [
+    ("x", 1.7976931348623157e308, "speed of light"),  # the step overflows to inf
+    ("ux", 1e300, "|u| gives a mean speed of 0.776"),  # u² overflows: β = 1, mean (β₃+1)/2
+])
+def test_huge_values_fail_one_check_without_warnings(tmp_path, helix, registry, column, value,
+                                                     reason):
+    table = helix(n_particles=1, gamma=1.2)  # β = 0.55: |u| → inf means a speed of c
+    table.loc[[3, 4], column] = [-value, value]
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # an overflow warning would be a second message
+        error, message = read_bad(tmp_path, registry, table)
+    assert reason in message and error.row == 4
+
+
+@pytest.mark.parametrize("values", [
+    [True, False] * 20,
+    pd.date_range("2020-01-01", periods=40, freq="s").to_list(),
+    pd.to_timedelta(np.arange(40), unit="ns").to_list(),
+])
+def test_column_of_booleans_or_dates_is_no_number(tmp_path, helix, registry, values):
+    table = helix(n_particles=1).assign(y=values)
+    path = tmp_path / "types.parquet"
+    pq.write_table(pa.Table.from_pandas(table), path)
+    with pytest.raises(TrackError, match="values, not numbers") as error:
+        read_tracks(path, charge=ELECTRON_CHARGE_C, registry=registry)
+    assert (error.value.column, error.value.row) == ("y", 1)
+
+
+def test_true_and_false_in_a_csv_column(tmp_path, helix, registry):
+    table = helix(n_particles=1).assign(weight=[True, False] * 20)
+    error, message = read_bad(tmp_path, registry, table)
+    assert error.column == "weight" and "bool values, not numbers" in message

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from ._jit import jit
 
 C = 299792458.0
@@ -41,12 +43,19 @@ def field_at(nx, ny, nz, bx, by, bz, inv_g2, ax, ay, az, inv_r, velocity_term):
 def fields_near(t, pos, beta, inv_g2, beta_dot, observer, t_obs, e_out):
     """t_obs (N,) and e_out (N, 3) (per q/4πε0) of samples (t, pos, beta, inv_g2,
     beta_dot) seen from observer (3,)."""
+    fields_near_kappa(t, pos, beta, inv_g2, beta_dot, observer, t_obs, e_out,
+                      np.empty(t.shape[0]))
+
+
+@jit
+def fields_near_kappa(t, pos, beta, inv_g2, beta_dot, observer, t_obs, e_out, kappa_out):
+    """As `fields_near`, and κ = dt/dt′ (N,) of each sample in kappa_out."""
     for j in range(t.shape[0]):
         dx = observer[0] - pos[j, 0]
         dy = observer[1] - pos[j, 1]
         dz = observer[2] - pos[j, 2]
         r = math.sqrt(dx * dx + dy * dy + dz * dz)
-        e_out[j, 0], e_out[j, 1], e_out[j, 2], _ = field_at(
+        e_out[j, 0], e_out[j, 1], e_out[j, 2], kappa_out[j] = field_at(
             dx / r, dy / r, dz / r, beta[j, 0], beta[j, 1], beta[j, 2], inv_g2[j],
             beta_dot[j, 0], beta_dot[j, 1], beta_dot[j, 2], 1.0 / r, True)
         t_obs[j] = t[j] + r / C
@@ -56,13 +65,35 @@ def fields_near(t, pos, beta, inv_g2, beta_dot, observer, t_obs, e_out):
 def fields_far(t, pos, beta, inv_g2, beta_dot, direction, distance, origin, t_obs, e_out):
     """Far-field t_obs (N,) and e_out (N, 3): radiation term, n = direction (3,) and
     R₀ = distance fixed, seen from origin (3,)."""
+    fields_far_kappa(t, pos, beta, inv_g2, beta_dot, direction, distance, origin, t_obs,
+                     e_out, np.empty(t.shape[0]))
+
+
+@jit
+def fields_far_kappa(t, pos, beta, inv_g2, beta_dot, direction, distance, origin, t_obs,
+                     e_out, kappa_out):
+    """As `fields_far`, and κ = dt/dt′ (N,) of each sample in kappa_out."""
     nx = direction[0]
     ny = direction[1]
     nz = direction[2]
     for j in range(t.shape[0]):
-        e_out[j, 0], e_out[j, 1], e_out[j, 2], _ = field_at(
+        e_out[j, 0], e_out[j, 1], e_out[j, 2], kappa_out[j] = field_at(
             nx, ny, nz, beta[j, 0], beta[j, 1], beta[j, 2], inv_g2[j], beta_dot[j, 0],
             beta_dot[j, 1], beta_dot[j, 2], 1.0 / distance, False)
         projected = (nx * (pos[j, 0] - origin[0]) + ny * (pos[j, 1] - origin[1])
                      + nz * (pos[j, 2] - origin[2]))
         t_obs[j] = t[j] + (distance - projected) / C
+
+
+def point_fields(t, state, point: int, points_m, far, t_obs, e_out, kappa_out):
+    """Fill t_obs, e_out (per q/4πε0) and kappa_out of the samples (t, state = (pos, beta,
+    inv_g2, beta_dot)) at observer point `point`: near field at points_m[point], or, when
+    far = (directions (P, 3), distances (P,), origin (3,)), the far field in that direction."""
+    pos, beta, inv_g2, beta_dot = state
+    if far is None:
+        fields_near_kappa(t, pos, beta, inv_g2, beta_dot, points_m[point], t_obs, e_out,
+                          kappa_out)
+    else:
+        directions, distance, origin = far
+        fields_far_kappa(t, pos, beta, inv_g2, beta_dot, directions[point], distance[point],
+                         origin, t_obs, e_out, kappa_out)

@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 from scipy import constants
 
+import lagfield
 from lagfield.plugins import csv_format
 from lagfield.signals import Signals
 from lagfield.tracks import read_tracks
@@ -89,3 +90,43 @@ def test_exporter_writes_spectra_when_present(tmp_path):
     names = csv_format.CsvExporter().write(signals, tmp_path, {})
     assert names[-1] == "spectra.csv"
     np.testing.assert_array_equal(pd.read_csv(tmp_path / "spectra.csv").f, [1e11, 1e12])
+
+
+def test_repeated_header_name_is_kept_for_lagfield_to_report(tmp_path):
+    path = tmp_path / "dup.csv"
+    path.write_text("particle, t, x, x, z, x.1\n0, 0, 1, 2, 3, 4\n")
+    for frame in (IMPORTER.read(path, {}), *IMPORTER.iter_batches(path, {"batch_rows": 1})):
+        assert list(frame.columns) == ["particle", "t", "x", "x", "z", "x.1"]
+        assert frame.iloc[0].tolist() == [0, 0, 1, 2, 3, 4]
+
+
+def bad_file(tmp_path, text: bytes, name="bad.csv"):
+    path = tmp_path / name
+    path.write_bytes(text)
+    with pytest.raises(lagfield.TrackError) as error:
+        IMPORTER.read(path, {})
+    with pytest.raises(lagfield.TrackError):
+        list(IMPORTER.iter_batches(path, {"batch_rows": 2}))
+    assert str(path) in str(error.value)
+    return error.value
+
+
+def test_row_with_more_fields_than_the_header(tmp_path):
+    error = bad_file(tmp_path, b"particle,t,x,y,z\n0,0,0,0,0\n0,1,0,0,0\n0,2,0,0,0,9\n")
+    assert error.row == 3 and "Expected 5 fields in line 4, saw 6" in str(error)
+
+
+def test_every_row_with_one_field_more_than_the_header(tmp_path):
+    # pandas alone would take the first column as an index and shift every name by one
+    error = bad_file(tmp_path, b"particle,t,x,y,z\n0,0,0,0,0,9\n0,1,0,0,0,9\n")
+    assert error.row == 1 and "more fields than the header's 5 names" in str(error)
+
+
+def test_text_that_is_not_utf8_after_the_first_line(tmp_path):
+    error = bad_file(tmp_path, b"particle,t,x,y,z\n0,0,0,0,0\n0,1,\xb5,0,0\n")
+    assert "not UTF-8" in str(error) and "0xb5" in str(error)
+
+
+def test_unterminated_quote(tmp_path):
+    error = bad_file(tmp_path, b'particle,t,x,y,z\n0,0,0,0,0\n0,"1,0,0,0\n')
+    assert "not a well-formed delimited table" in str(error)

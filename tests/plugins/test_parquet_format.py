@@ -6,8 +6,10 @@ import numpy as np
 import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
+import pytest
 from scipy import constants
 
+import lagfield
 from lagfield.plugins import parquet_format
 from lagfield.signals import Signals
 from lagfield.tracks import iter_tracks, read_tracks
@@ -95,3 +97,23 @@ def test_exporter_writes_every_table(tmp_path):
     for name, table in signals.tables().items():
         back = pd.read_parquet(tmp_path / f"{name}.parquet")
         pd.testing.assert_frame_equal(back, table, check_dtype=False)
+
+
+def test_repeated_column_name_is_kept_for_lagfield_to_report(tmp_path, helix):
+    table = pa.Table.from_pandas(helix(n_particles=1), preserve_index=False)
+    path = tmp_path / "dup.parquet"
+    pq.write_table(table.rename_columns(["particle", "t", "x", "x", "z", "ux", "uy", "uz"]),
+                   path, row_group_size=15)
+    for frame in (IMPORTER.read(path, {}), next(IMPORTER.iter_batches(path, {}))):
+        assert list(frame.columns) == ["particle", "t", "x", "x", "z", "ux", "uy", "uz"]
+
+
+def test_corrupt_file_is_a_track_error(tmp_path, helix):
+    good = write(helix(), tmp_path / "good.parquet").read_bytes()
+    path = tmp_path / "corrupt.parquet"
+    path.write_bytes(good[:4] + bytes(len(good) - 8) + good[-4:])  # magic bytes intact
+    assert IMPORTER.can_read(path)
+    for attempt in (lambda: IMPORTER.read(path, {}),
+                    lambda: list(IMPORTER.iter_batches(path, {}))):
+        with pytest.raises(lagfield.TrackError, match="not a readable Parquet file"):
+            attempt()

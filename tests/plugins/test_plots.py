@@ -285,3 +285,121 @@ def test_import_does_not_load_matplotlib():
     code = ("import sys, lagfield.plugins.plots; "
             "assert not {'pandas', 'pyarrow'} & set(sys.modules)")
     subprocess.run([sys.executable, "-c", code], check=True)
+
+
+# ---------------------------------------------------------------------------------------
+# Exact fluence, sphere maps and spectrum axes
+
+
+def exact_fluence_table(signals, method="exact, from the source motion"):
+    """The fluence table of the fixture's groups from the analytic pulse energy
+    ε0 c |p|² A² τ √(π/2) (Gaussian integral, as in the grid tests above)."""
+    _, _, coords, _ = plane_points()
+    theta, phi, _ = sphere_points()
+    frames = []
+    for name, amp in (("screen", amplitude_plane(coords[:, 0], coords[:, 1])),
+                      ("sky", amplitude_sphere(theta, phi))):
+        energy = EPS0_C * POL2 * amp**2 * TAU_S * math.sqrt(math.pi / 2)
+        frame = pd.DataFrame({"observer": name, "point": np.arange(len(amp)),
+                              "fluence": energy, "method": method})
+        if name == "sky":
+            frame.insert(3, "dW_dOmega", SPHERE_RADIUS_M**2 * energy)
+        frames.append(frame)
+    return pd.concat(frames, ignore_index=True)
+
+
+def test_maps_use_the_run_fluence_table_and_name_the_method(signals):
+    """With a fluence table the map shows its values and its method; without one the bin
+    averages are used and the map says they are a lower bound."""
+    table = exact_fluence_table(signals, method="a method")
+    fields = group(signals.fields, "sky")
+    values, per_sr, method = plots.fluence_by_point(group(table, "sky"), fields, STEP_S)
+    assert method == "a method"
+    np.testing.assert_array_equal(values.to_numpy(), group(table, "sky")["fluence"])
+    np.testing.assert_array_equal(per_sr.to_numpy(), group(table, "sky")["dW_dOmega"])
+    values, per_sr, method = plots.fluence_by_point(None, fields, STEP_S)
+    assert per_sr is None and "lower bound" in method
+    np.testing.assert_allclose(values, plots.point_fluence(fields, STEP_S), rtol=0)
+    assert plots.fluence_by_point(None, fields.iloc[:0], STEP_S) is None
+
+
+def test_band_share_of_the_exact_total_stays_below_one(signals):
+    """The band map's share of the total: F ∝ exp(−2π²τ²f²) puts the fraction
+    [erf(√2πτ f_hi) − erf(√2πτ f_lo)] of ε0c∫|E|²dt in [f_lo, f_hi] (Gaussian integral), here
+    98.0 %; the trapezoid rule on the fixture's 40 log-spaced frequencies errs by 0.4 %, so
+    rtol 1e-2, and never above 1."""
+    table = exact_fluence_table(signals)
+    spectra = group(signals.spectra, "screen")
+    f = np.unique(spectra["f"])
+    band = plots.band_fluence(spectra, (f[0], f[-1])).sort_index().to_numpy()
+    low, high = plots.band_share(band, group(table, "screen")["fluence"].to_numpy())
+    fraction = (special.erf(math.sqrt(2) * math.pi * TAU_S * f[-1])
+                - special.erf(math.sqrt(2) * math.pi * TAU_S * f[0]))
+    assert low == pytest.approx(fraction, rel=1e-2) and high == pytest.approx(fraction, rel=1e-2)
+    assert high <= 1.0
+
+
+def test_exporter_with_a_fluence_table_writes_the_same_figures(tmp_path, signals):
+    result = Signals(signals.observers, signals.fields, signals.spectra, {"warnings": []},
+                     fluence=exact_fluence_table(signals))
+    names = plots.PlotExporter().write(result, tmp_path, {"dpi": 40})
+    assert {"screen_fluence_map.png", "sky_fluence_map.png", "sky_band_map.png"} <= set(names)
+
+
+def test_sphere_cells_are_sectors_around_each_direction(signals):
+    """Each direction (θ, φ) is drawn at (θ cos φ, θ sin φ) inside a sector reaching half-way
+    to its neighbours (θ clipped at 0), drawn with arcs of at most 3°, coloured with its
+    own value."""
+    layout = plots.grid_layout(group(signals.observers, "sky"))
+    values = np.arange(layout.points.size, dtype=float).reshape(layout.points.shape)
+    x, y, c = plots.sphere_mesh(layout, values)
+    n_theta, n_phi = layout.points.shape
+    pieces = c.shape[1] // n_phi
+    assert c.shape == (n_theta, n_phi * pieces) and x.shape == (n_theta + 1, c.shape[1] + 1)
+    radius = np.hypot(x, y)
+    theta_edges = [0.0, 0.01, 0.03, 0.05]  # half-way between 0, 0.02, 0.04; pole at 0
+    np.testing.assert_allclose(radius, np.repeat(np.array(theta_edges)[:, None],
+                                                 x.shape[1], axis=1), atol=1e-15)
+    azimuth = np.unwrap(np.arctan2(y[-1], x[-1]))
+    step = PHI_RAD[1] - PHI_RAD[0]
+    assert np.max(np.diff(azimuth)) <= math.radians(3.0) + 1e-12
+    for j, phi in enumerate(PHI_RAD):
+        cell = slice(j * pieces, (j + 1) * pieces)
+        np.testing.assert_array_equal(c[:, cell], np.repeat(values[:, j:j + 1], pieces, 1))
+        assert azimuth[j * pieces] == pytest.approx(phi - step / 2, abs=1e-12)
+        assert azimuth[(j + 1) * pieces] == pytest.approx(phi + step / 2, abs=1e-12)
+
+
+@pytest.mark.parametrize("frequencies, summary, expected", [
+    (np.linspace(1e12, 5e12, 50), None, "linear"),
+    (np.geomspace(1e9, 1e13, 50), None, "log"),
+    (np.linspace(0.0, 5e12, 50), None, "linear"),
+    (np.geomspace(1e9, 1e13, 50),
+     {"run": {"spectrum": {"frequencies": {"spacing": "linear"}}}}, "linear"),
+    (np.linspace(1e12, 5e12, 50), {"run": {"spectrum": {"frequencies": {"spacing": "log"}}}},
+     "log"),
+])
+def test_frequency_axis_follows_the_run_spacing(frequencies, summary, expected):
+    assert plots.frequency_spacing(frequencies, summary) == expected
+
+
+def test_log_axis_floor_cuts_numerical_noise():
+    """max(peak × 1e-12, 1st percentile of the positive values)."""
+    deep = np.geomspace(1.0, 1e-20, 1001)  # noise reaching far below 1e-12 of the peak
+    assert plots.log_floor(deep) == pytest.approx(1e-12)
+    shallow = np.append(np.geomspace(1.0, 1e-6, 101), [0.0, -1.0])
+    assert plots.log_floor(shallow) == pytest.approx(np.percentile(shallow[:101], 1.0))
+    assert plots.log_floor(np.zeros(5)) is None
+
+
+def test_spectrum_figure_axes(signals):
+    """A linear frequency list gets a linear frequency axis, a log one a log axis; the log
+    y axis starts at the noise floor of the curves shown."""
+    observers, spectra = group(signals.observers, "pickup"), group(signals.spectra, "pickup")
+    figure = plots.plot_spectra("pickup", observers, spectra, None, [0, 1], spacing="log")
+    ax = figure.axes[0]
+    assert ax.get_xscale() == "log" and ax.get_yscale() == "log"
+    assert ax.get_ylim()[0] == pytest.approx(plots.log_floor(spectra["fluence"]), rel=1e-9)
+    linear = spectrum_rows("pickup", [1.0, 0.5], np.linspace(1e9, 3e11, 40))
+    figure = plots.plot_spectra("pickup", observers, linear, None, [0, 1], spacing="linear")
+    assert figure.axes[0].get_xscale() == "linear"

@@ -1,0 +1,83 @@
+"""run.json: what a run read, how it ran and what it found, assembled once at its end.
+
+Paths are relative to the folder of the run file (the current directory for a run given
+as a dict); the list of files written is filled in by `OutputTarget.commit`.
+"""
+
+from __future__ import annotations
+
+import os
+import platform
+from pathlib import Path
+
+import numpy as np
+
+from . import __version__
+from .outputs import SAFETY_NOTE, caught_warnings, sha256
+
+ENVIRONMENT_PREFIX = "LAGFIELD_"
+# thread settings of the libraries lagfield computes with (numba, OpenMP, BLAS)
+THREAD_VARIABLES = ("NUMBA_NUM_THREADS", "NUMBA_THREADING_LAYER", "NUMBA_DISABLE_JIT",
+                    "OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS")
+
+
+def environment(variables=None) -> dict[str, str]:
+    """The environment variables that can change what a run does, as set."""
+    variables = os.environ if variables is None else variables
+    return {name: value for name, value in sorted(variables.items())
+            if name.startswith(ENVIRONMENT_PREFIX) or name in THREAD_VARIABLES}
+
+
+def _relative(path: Path, base: Path) -> str:
+    return Path(os.path.relpath(Path(path).resolve(), base)).as_posix()
+
+
+def group_record(result, align: str, n_particles: int) -> dict:
+    """Time window and source sampling of one group's GroupFields: start, stop, step (s)
+    and bins (per point when align is "point"); source samples in all and per particle per
+    output bin (bins of the window that spans every point's)."""
+    step = float(result.step_s)
+    start = np.asarray(result.start_s, dtype=float)
+    bins = np.asarray(result.n_bins, dtype=np.int64)
+    stop = start + (bins - 1) * step
+    window = {"start_s": float(start.min()), "stop_s": float(stop.max()), "step_s": step,
+              "bins": int(round((stop.max() - start.min()) / step)) + 1}
+    if align == "point":
+        window["points"] = [{"point": p, "start_s": float(start[p]), "stop_s": float(stop[p]),
+                             "bins": int(bins[p])} for p in range(bins.size)]
+    samples = int(getattr(result, "source_samples", 0))
+    per_bin = samples / (max(n_particles, 1) * window["bins"])
+    return {"points": int(bins.size), "window": window, "source_samples": samples,
+            "source_samples_per_bin": per_bin}
+
+
+def run_summary(run_file, config, *, tracks, results, registry, exporters=(), timings,
+                output=None) -> dict:
+    """The content of run.json. run_file: the run file's path (None for a dict); results:
+    the GroupFields of every group; exporters: registry PluginInfo of the exporters used;
+    output: the OutputTarget (None when nothing is written)."""
+    base = Path(run_file).resolve().parent if run_file is not None else Path.cwd()
+    inputs = [p for p in (config.tracks.path, run_file) if p is not None]
+    warnings = [f"plugin '{b.name}' ({b.distribution}) could not be loaded: {b.error}"
+                for b in registry.broken]
+    for source in (config, tracks, output):
+        warnings += [str(w) for w in (getattr(source, "warnings", None) or ())]
+    warnings += list(getattr(output, "notes", None) or ()) + caught_warnings()
+    importer = getattr(tracks, "importer", None)
+    return {
+        "program": "lagfield", "version": __version__,
+        "python": platform.python_version(),
+        "run_file": None if run_file is None else str(run_file), "run": config.raw,
+        "inputs": {_relative(p, base): {"sha256": sha256(Path(p))} for p in inputs},
+        "importer": None if importer is None else str(importer),
+        "exporters": [getattr(info, "label", f"{info.name} ({info.distribution})")
+                      for info in exporters],
+        "particles": len(tracks),
+        "observer_groups": [result.group.name for result in results],
+        "groups": {result.group.name: group_record(result, config.time.align, len(tracks))
+                   for result in results},
+        "warnings": warnings, "timings": timings, "environment": environment(),
+        "note": SAFETY_NOTE,
+        "output_dir": None if output is None else _relative(output.directory, base),
+        "files": [],
+    }

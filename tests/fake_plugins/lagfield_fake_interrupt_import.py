@@ -1,0 +1,3 @@
+"""A plugin whose import is interrupted (as by Ctrl-C)."""
+
+raise KeyboardInterrupt
