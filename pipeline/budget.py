@@ -31,14 +31,13 @@ import numpy as np
 
 from .engine import SAMPLES_PER_BIN
 from .errors import ConfigError
-from .spectra import NUFFT_UPSAMPLING
+from .transforms import NUFFT_BYTES_PER_GRID_POINT, NUFFT_MEMORY_BYTES, nufft_grid_points
 from .wording import plural
 
 GRID_BYTES_PER_BIN = 12 * 8  # per point and bin: 6 bin integrals, then E and B (6 more)
 FIELDS_TABLE_BYTES_PER_ROW = 2 * 10 * 8  # ~10 columns of 8 bytes, per-point frames + concat
 SPECTRUM_BYTES_PER_VALUE = 3 * 16 + 8  # per point and frequency: Ẽ (3 complex), fluence
 SPECTRA_TABLE_BYTES_PER_ROW = 2 * 12 * 8  # ~12 columns of 8 bytes, built and concatenated
-NUFFT_BYTES_PER_GRID_POINT = 4 * 16  # complex fine grid; peak ~4 grids (bench_budget.py)
 SOURCE_SAMPLE_BYTES = 40 * 8  # motion state (11 floats), refined copies, fields, weights
 MEMORY_FRACTION = 0.8  # of the available memory a run may plan to use
 
@@ -95,9 +94,10 @@ def estimate_group(group, start_s, n_bins, settings, spectrum=None) -> Estimate:
                           f"{plural(f.size, 'frequency', 'frequencies')})",
                           values * (SPECTRUM_BYTES_PER_VALUE + SPECTRA_TABLE_BYTES_PER_ROW),
                           SPECTRA_ADVICE))
-        grid = NUFFT_UPSAMPLING * window_s * float(f.max() - f.min())
+        grid = nufft_grid_points(window_s, f.min(), f.max())  # a longer one is cut in pieces
         parts.append(Part(f"NUFFT grid of one point ({grid:.3g} values)",
-                          grid * NUFFT_BYTES_PER_GRID_POINT, NUFFT_ADVICE, per_particle=True))
+                          min(grid * NUFFT_BYTES_PER_GRID_POINT, NUFFT_MEMORY_BYTES),
+                          NUFFT_ADVICE, per_particle=True))
     if settings.extend == "ballistic":
         samples = SAMPLES_PER_BIN * window_s / settings.resolution_s()
         parts.append(Part(f"source samples of one particle ({samples:.3g})",

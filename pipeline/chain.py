@@ -98,8 +98,15 @@ def hat_weights(t_s: np.ndarray, h_per_s: np.ndarray, step_s: float) -> np.ndarr
     return weights
 
 
+class AnyStep:
+    """A chain element that any time step serves (no band edge to check against it)."""
+
+    def check_step(self, step_s: float) -> str | None:
+        return None
+
+
 @dataclasses.dataclass(frozen=True, eq=False)
-class ImpulseResponse:
+class ImpulseResponse(AnyStep):
     """A tabulated impulse response: t_s (s, uniform, ≥ 0) and h_per_s (1/s); source names
     the file for messages."""
 
@@ -109,9 +116,6 @@ class ImpulseResponse:
 
     kind = "impulse_response"
 
-    def check_step(self, step_s: float) -> str | None:
-        return None
-
     def apply(self, samples: np.ndarray, step_s: float) -> np.ndarray:
         weights = hat_weights(self.t_s, self.h_per_s, step_s)
         samples = np.asarray(samples, dtype=float)
@@ -119,7 +123,7 @@ class ImpulseResponse:
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
-class Touchstone:
+class Touchstone(AnyStep):
     """S21 of a 2-port Touchstone file: frequency_hz (ascending, ≥ 0) and s21 (complex)."""
 
     frequency_hz: np.ndarray
@@ -127,9 +131,6 @@ class Touchstone:
     source: str = ""
 
     kind = "touchstone"
-
-    def check_step(self, step_s: float) -> str | None:
-        return None
 
     def transfer(self, frequency_hz: np.ndarray) -> np.ndarray:
         """S21 at frequency_hz: magnitude and unwrapped phase interpolated linearly inside
@@ -184,15 +185,12 @@ class Touchstone:
 
 
 @dataclasses.dataclass(frozen=True)
-class Gain:
+class Gain(AnyStep):
     """A constant voltage factor (from "20 dB" → 10, or a plain factor)."""
 
     factor: float
 
     kind = "gain"
-
-    def check_step(self, step_s: float) -> str | None:
-        return None
 
     def apply(self, samples: np.ndarray, step_s: float) -> np.ndarray:
         return self.factor * np.asarray(samples, dtype=float)

@@ -21,6 +21,7 @@ from .wording import plural
 EXIT_BUG = 1  # an unexpected exception: a bug in lagfield or in a plugin
 EXIT_USAGE = 2  # the command line itself is wrong (argparse)
 EXIT_INTERRUPTED = 130  # Ctrl-C, as shells report SIGINT
+EXIT_BROKEN_PIPE = 141  # stdout's reader went away, as shells report SIGPIPE
 # options whose value may begin with "-" ("--charge -1e"), which argparse would otherwise
 # take for an option of its own
 SIGNED_VALUE_OPTIONS = ("--charge", "--workers")
@@ -165,6 +166,12 @@ def _cmd_inspect(args) -> int:
                             "lagfield inspect RUN.toml",)
             raise
     print(json.dumps(report, indent=2) if args.json else format_report(report))
+    if not report["valid"]:  # the same refusal `run` would make
+        sys.stdout.flush()
+        from .errors import MotionError
+
+        raise MotionError(f"{plural(report['n_refused'], 'track')} would be refused by a "
+                          f"run; the first: {report['refused'][0]['message']}")
     return 0
 
 
@@ -207,6 +214,15 @@ def _warnings_as_lines():
         warnings.showwarning = previous
 
 
+def _silence_stdout() -> None:
+    """Point stdout at /dev/null, so the interpreter's final flush of a closed pipe does
+    not print a complaint."""
+    import os
+
+    with contextlib.suppress(OSError, ValueError):
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+
+
 def main(argv=None) -> int:
     """Run the command line `argv` (default: sys.argv[1:]); returns the exit code."""
     argv = _join_signed_values(sys.argv[1:] if argv is None else list(argv))
@@ -218,6 +234,9 @@ def main(argv=None) -> int:
     try:
         with _warnings_as_lines():
             return handler(args)
+    except BrokenPipeError:  # stdout closed early (`lagfield inspect ... | head -1`)
+        _silence_stdout()
+        return EXIT_BROKEN_PIPE
     except LagfieldError as exc:
         if args.debug:
             raise

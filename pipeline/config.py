@@ -13,6 +13,7 @@ import dataclasses
 import tomllib
 from pathlib import Path
 
+from .detectors import parse_detectors
 from .distributed import check_scheduler_address, check_workers
 from .errors import ConfigError
 from .observers import plane_axes, point_count
@@ -22,8 +23,8 @@ from .units import to_si, unit_factor
 # every key the run file may hold, per table
 KNOWN_KEYS = {
     "": {"tracks", "motion", "observers", "fields", "time", "spectrum", "compute", "output",
-         "plugins"},
-    "tracks": {"path", "format", "charge", "columns", "units", "u_tolerance", "u_offset"},
+         "plugins", "detectors"},
+    "tracks": {"path", "format", "charge", "columns", "units", "u_offset"},
     "motion": {"degree", "extend", "smoothing"},
     "observers": {"name", "points", "plane", "sphere"},
     "observers.plane": {"center", "u", "v", "size", "shape"},
@@ -41,6 +42,12 @@ DEGREES = (3, 5)  # spline degrees the run file may ask for (odd: symmetric inte
 MAX_POINTS_PER_GROUP = 10_000_000
 MAX_FREQUENCIES = 10_000_000
 MAX_TYPO_EDITS = 2  # a key this many edits from a known one gets a "did you mean" hint
+# keys of earlier versions, with what replaced them (an error, never silently ignored)
+REPLACED_KEYS = {
+    ("tracks", "u_tolerance"): "was replaced by the slip check of positions against "
+    "momenta, which needs no setting (README, 'Motion with momenta': the slip rule); remove "
+    "the key",
+}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -50,13 +57,14 @@ class TracksConfig:
     charge_c: float | None = None
     columns: dict = dataclasses.field(default_factory=dict)
     units: dict = dataclasses.field(default_factory=dict)
-    u_tolerance: float = 0.05
-    u_offset_s: float = 0.0  # ux, uy, uz were sampled at t + u_offset_s
+    # ux, uy, uz were sampled at t + u_offset_s; None: the importer's offset, else 0
+    u_offset_s: float | None = None
+    plugins: dict = dataclasses.field(default_factory=dict)  # [plugins], for the importer
 
     def read_options(self) -> dict:
         """The keyword options of `lagfield.read_tracks` for this table (path aside)."""
         return dict(format=self.format, columns=self.columns, units=self.units,
-                    charge=self.charge_c, u_tolerance=self.u_tolerance)
+                    charge=self.charge_c, options={"plugins": self.plugins})
 
 
 @dataclasses.dataclass(frozen=True)
@@ -125,6 +133,7 @@ class RunConfig:
     compute: ComputeConfig
     output: OutputConfig
     plugins: dict
+    detectors: tuple = ()  # DetectorConfig of each [[detectors]] entry (lagfield.detectors)
 
 
 # ---------------------------------------------------------------------------- key names
@@ -161,6 +170,8 @@ def _unknown(word: str, choices, what: str) -> str:
 
 def _check_keys(table: dict, section: str, label: str) -> None:
     for key in table:
+        if (section, key) in REPLACED_KEYS:
+            raise ConfigError(f"{label} {key} {REPLACED_KEYS[section, key]}")
         if key not in KNOWN_KEYS[section]:
             raise ConfigError(f"{label}: {_unknown(key, KNOWN_KEYS[section], 'key')}")
 
@@ -264,14 +275,14 @@ def _tracks(raw: dict, base_dir: Path) -> TracksConfig:
         if charge == 0.0:
             raise ConfigError("[tracks] charge: must not be 0 (a neutral particle radiates "
                               "nothing)")
-    u_tolerance = _positive(to_si(tracks.get("u_tolerance", 0.05), "dimensionless",
-                                  where="[tracks] u_tolerance"), "[tracks] u_tolerance")
+    u_offset = tracks.get("u_offset")
     return TracksConfig(
         path=_path(tracks["path"], base_dir, "[tracks] path"),
         format=None if "format" not in tracks else _text(tracks["format"], "[tracks] format"),
         charge_c=charge, columns=mappings["columns"], units=mappings["units"],
-        u_tolerance=u_tolerance,
-        u_offset_s=to_si(tracks.get("u_offset", 0.0), "time", where="[tracks] u_offset"))
+        u_offset_s=None if u_offset is None else to_si(u_offset, "time",
+                                                       where="[tracks] u_offset"),
+        plugins=raw["plugins"] if isinstance(raw.get("plugins"), dict) else {})
 
 
 def _motion(raw: dict) -> MotionConfig:
@@ -467,10 +478,14 @@ def _parse(raw, base_dir: Path, source) -> RunConfig:
     observers = _observers(raw)
     far_field = _flag(_table(raw, "fields", "fields", "[fields]").get("far_field", False),
                       "[fields] far_field")
+    time = _time(raw)
+    detectors = parse_detectors(raw.get("detectors", []), base_dir=base_dir, where="",
+                                groups={o.name: point_count(o) for o in observers},
+                                step_s=time.step_s)
     return RunConfig(source=source, raw=raw, tracks=tracks, motion=motion,
-                     observers=observers, far_field=far_field, time=_time(raw),
+                     observers=observers, far_field=far_field, time=time,
                      spectrum=_spectrum(raw), compute=_compute(raw),
-                     output=_output(raw, base_dir), plugins=_plugins(raw))
+                     output=_output(raw, base_dir), plugins=_plugins(raw), detectors=detectors)
 
 
 def parse(raw: dict, *, base_dir: Path, source: Path | None = None) -> RunConfig:

@@ -186,6 +186,10 @@ def read_touchstone(path: Path, place: str) -> Touchstone:
     return Touchstone(frequency_hz=frequency_hz, s21=s21, source=path.name)
 
 
+# the chain elements read from a file, and their readers
+FILE_READERS = {"impulse_response": read_impulse_response, "touchstone": read_touchstone}
+
+
 # ---------------------------------------------------------------------------- entries
 def _sensor(entry: dict, place: str):
     table = _keys(_require(entry, "sensor", "a detector", place), "sensor", place)
@@ -275,8 +279,7 @@ def _chain(entry: dict, base_dir: Path, place: str) -> tuple[tuple, tuple]:
         else:
             _keys(spec, kind, where)
             path = _file(_require(spec, "path", kind, where), base_dir, where)
-            reader = read_impulse_response if kind == "impulse_response" else read_touchstone
-            elements.append(reader(path, where))
+            elements.append(FILE_READERS[kind](path, where))
             inputs.append(path)
     return tuple(elements), tuple(inputs)
 
@@ -332,38 +335,45 @@ def _check_reach(detector: DetectorConfig, groups: dict, place: str) -> None:
                             f"'{detector.observer}' has points 0 … {count - 1}")
 
 
+def _lead(where: str) -> str:
+    """The prefix of a message: "run.toml: ", or nothing for an empty `where`."""
+    return f"{where}: " if where else ""
+
+
 def check_step(detector: DetectorConfig, step_s: float, where: str = "run file") -> None:
     """DetectorError when the step is too coarse for the detector's band or rate."""
     for index, element in enumerate(detector.chain):
         problem = element.check_step(step_s)
         if problem:
-            raise DetectorError(f"{where}: detector '{detector.name}': chain element "
+            raise DetectorError(f"{_lead(where)}detector '{detector.name}': chain element "
                                 f"{index + 1}: {problem}")
     if detector.digitizer is not None:
         problem = detector.digitizer.check_step(step_s)
         if problem:
-            raise DetectorError(f"{where}: detector '{detector.name}': {problem}")
+            raise DetectorError(f"{_lead(where)}detector '{detector.name}': {problem}")
 
 
 def parse_detectors(entries, *, base_dir, where: str = "run file", groups: dict | None = None,
                     step_s: float | None = None) -> tuple[DetectorConfig, ...]:
     """The run file's `[[detectors]]` entries as DetectorConfigs (SI values, files read).
 
-    base_dir: where relative paths start (the run file's folder). groups: observer group
+    base_dir: where relative paths start (the run file's folder). where: what messages
+    start with (the run file; "" for none, when the caller adds it). groups: observer group
     name → number of points, to check `observer` and `points` now (None: checked later by
     detector_tables). step_s: the run's step, to check bands and rates now.
     """
     if not isinstance(entries, list):
-        raise DetectorError(f"{where}: detectors must be a list of [[detectors]] tables")
+        raise DetectorError(f"{_lead(where)}detectors must be a list of [[detectors]] tables "
+                            "(write [[detectors]], not [detectors])")
     detectors = []
     for index, entry in enumerate(entries):
-        place = f"{where}: [[detectors]] #{index + 1}"
+        place = f"{_lead(where)}[[detectors]] #{index + 1}"
         if not isinstance(entry, dict):
             raise DetectorError(f"{place}: must be a table")
         name = entry.get("name")
         if not isinstance(name, str) or not name:
             raise DetectorError(f"{place}: needs a name")
-        place = f"{where}: detector '{name}'"
+        place = f"{_lead(where)}detector '{name}'"
         _keys(entry, "detectors", place)
         if any(d.name == name for d in detectors):
             raise DetectorError(f"{place}: the name is used by another detector")
@@ -427,7 +437,7 @@ def detector_tables(detectors, group_fields_by_name: dict):
         fields = group_fields_by_name[detector.observer]
         count = len(fields.n_bins)
         _check_reach(detector, {detector.observer: count}, place)
-        check_step(detector, fields.step_s, "run")
+        check_step(detector, fields.step_s, "")
         rng = detector.digitizer.rng() if detector.digitizer else None
         analog, sampled = [], []
         for point in detector.points if detector.points is not None else range(count):

@@ -1,58 +1,93 @@
-"""What is in a track file, and whether its sampling resolves the radiation the motion
-implies (`lagfield inspect TRACKS`).
+"""What is in a track file, whether `run` accepts its tracks, and whether its sampling
+resolves the motion (`lagfield inspect TRACKS | RUN.toml`).
 
-Per particle the strongest bend is found from finite differences: velocity from u (or
-from the positions), acceleration from the velocity, radius of curvature
-rho = v² / |a_perp|. A charge on a bend of radius rho radiates up to about the critical
-frequency omega_c = 3 γ³ c / (2 rho) (Jackson, Classical Electrodynamics, 3rd ed.,
-eq. 14.85), over a formation time of about rho / (c γ) in source time. As common practice
-the track step should be at most a quarter of that formation time for the motion spline
-to reconstruct the bend.
+Validity is decided by the very functions `run` uses: the reader's checks and
+`motion.checked_motion` (the slip of positions against momenta, the speed below c) at the
+time scale the run resolves. With a run file that is the run's `resolution_s`; without one
+it is each track's median sample spacing, and the report says so. A track `run` refuses is
+an error here with the same message; a track `run` accepts is never called invalid.
+Resolution findings are those of `lagfield.resolution`, which `run` writes to run.json.
+
+The strongest bend is measured on the samples themselves, interval by interval: the turn
+φ between the sampled directions of motion (from ux, uy, uz) and the chord c between the
+positions give the radius ρ = c / (2 sin(φ/2)), exact on an arc; without momenta, the
+circle through three neighbouring positions. An interval that straddles a hard field edge
+turns less than an arc would, so it never shows a bend sharper than the magnet's. A charge
+on a bend of radius ρ radiates up to about the critical frequency ω_c = 3γ³c/(2ρ)
+(Jackson, Classical Electrodynamics, 3rd ed., eq. 14.85).
 """
 
 from __future__ import annotations
 
 import math
+import pathlib
 
 import numpy as np
 from scipy import constants
 
+from .errors import MotionError
+from .motion import SLIP_FRACTION, checked_motion, slip_report
+from .resolution import check_resolution
 from .tracks import iter_tracks
 from .wording import plural
 
-STEP_FRACTION = 0.25  # largest step / formation time (common practice)
-MIN_TURN_RAD = 1e-9  # smaller turns per step count as straight motion
-MAX_LISTED = 20  # problem sentences listed in a report
+MIN_TURN_RAD = 1e-9  # smaller turns per interval count as straight motion
+# a larger turn within one interval (sin of half of it) is a reversal or a stop, not a bend
+MAX_HALF_TURN_SIN = 0.5
+MAX_LISTED = 20  # sentences listed per kind in a report
 
 
-def inspect_tracks(path, **read_options) -> dict:
+def inspect_tracks(path, *, resolution_s=None, motion_options=None, **read_options) -> dict:
     """A JSON-serialisable summary of the track file at `path`; `read_options` as for
     `lagfield.read_tracks` (format, columns, units, charge, ...).
 
-    Files without a charge column are inspected with the electron charge unless
-    `charge` is given (the charge does not enter any figure here).
+    resolution_s: the time scale a run resolves (`FieldSettings.resolution_s()`); None:
+    each track's median sample spacing. motion_options: keyword options of `Motion`
+    (degree, smoothing_m, u_offset_s) as the run would use them. Files without a charge
+    column are inspected with the electron charge unless `charge` is given (the charge
+    does not enter any figure here).
     """
     read_options.setdefault("charge", -constants.e)
+    read_options.setdefault("min_samples", 2)
+    motion_options = dict(motion_options or {})
+    degree = motion_options.get("degree", 5)
     samples, spans, gammas, accelerations = [], [], [], []
-    bends, problems, straight = [], [], 0
-    has_momentum = False
+    bends, slips, refused, findings = [], [], [], []
+    has_momentum, straight = False, 0
     for track in iter_tracks(path, **read_options):
         has_momentum = track.u is not None
-        facts = _analyse(track)
         samples.append(track.n_samples)
         spans.append((float(track.t_s[0]), float(track.t_s[-1])))
+        facts = _analyse(track)
         gammas.extend(facts["gamma_range"])
         accelerations.append(facts["peak_acceleration"])
         if facts["bend"] is None:
             straight += 1
+        else:
+            bends.append(facts["bend"])
+        scale = resolution_s if resolution_s is not None else float(np.median(
+            np.diff(track.t_s)))
+        try:
+            motion = checked_motion(track, scale, path=path, **motion_options)
+        except MotionError as error:
+            refused.append({"particle": track.particle, "message": str(error)})
             continue
-        bends.append(facts["bend"])
-        if facts["problem"] is not None:
-            problems.append(facts["problem"])
-    problems.sort(key=lambda p: -p["factor"])
+        report = slip_report(motion)
+        if report is not None:
+            i = report.worst()
+            slips.append({"particle": track.particle, "t_s": float(report.t_s[i]),
+                          "slip_s": float(report.slip_s[i]), "scale_s": scale,
+                          "fraction": float(report.slip_s[i] / scale)})
+        finding = check_resolution(track, degree)
+        if finding is not None:
+            findings.append({"particle": finding.particle, "t_s": finding.t_s,
+                             "factor": finding.factor, "message": finding.sentence()})
+    slips.sort(key=lambda p: -p["fraction"])
+    findings.sort(key=lambda p: -p["factor"])
     strongest = min(bends, key=lambda b: b["radius_m"], default=None)
     return {
         "path": str(path),
+        "source": _source_facts(path, read_options),
         "n_particles": len(samples),
         "n_rows": int(sum(samples)),
         "has_momentum": has_momentum,
@@ -68,103 +103,117 @@ def inspect_tracks(path, **read_options) -> dict:
         "strongest_bend": strongest,
         "max_critical_frequency_hz": max((b["critical_frequency_hz"] for b in bends),
                                          default=None),
-        "step_fraction": STEP_FRACTION,
-        "resolved": not problems,
-        "n_problems": len(problems),
-        "problems": problems[:MAX_LISTED],
+        "slip_judged_against": ("the run's resolution" if resolution_s is not None
+                                else "each track's median sample spacing (no run file)"),
+        "resolution_s": resolution_s,
+        "slip_fraction_allowed": SLIP_FRACTION,
+        "largest_slips": slips[:MAX_LISTED],
+        "valid": not refused,
+        "n_refused": len(refused),
+        "refused": refused[:MAX_LISTED],
+        "resolved": not findings,
+        "n_problems": len(findings),
+        "problems": findings[:MAX_LISTED],
     }
 
 
 def inspect_run(run_file, **overrides) -> dict:
     """`inspect_tracks` of the track file a run file names, read with the run's [tracks]
-    format, columns, units, charge and tolerances; `overrides` (e.g. format, charge,
-    registry) take precedence. The report also names the run file."""
+    format, columns, units and charge, judged with the run's motion settings and
+    resolution; `overrides` (e.g. format, charge, registry) take precedence. The report
+    also names the run file."""
     from .config import load
+    from .runner import settings_from
 
-    tracks = load(run_file).tracks
+    config = load(run_file)
+    tracks = config.tracks
     options = {k: v for k, v in tracks.read_options().items() if v is not None}
-    report = inspect_tracks(tracks.path, **{**options, **overrides})
+    settings, _ = settings_from(config)
+    motion_options = {"degree": settings.degree, "extend": settings.extend,
+                      "smoothing_m": settings.smoothing_m, "u_offset_s": settings.u_offset_s}
+    report = inspect_tracks(tracks.path, resolution_s=settings.resolution_s(),
+                            motion_options=motion_options, **{**options, **overrides})
     return {"run_file": str(run_file), **report}
 
 
 def _analyse(track) -> dict:
-    """Lorentz factor range, peak acceleration, strongest bend and the sampling problem
-    (if any) of one track."""
+    """Lorentz factor range, peak acceleration and strongest bend of one track."""
     c = constants.c
     t, r = track.t_s, track.position_m
-    facts = {"gamma_range": [], "peak_acceleration": 0.0, "bend": None, "problem": None}
-    if len(t) < 2:
-        return facts
+    facts = {"gamma_range": [], "peak_acceleration": 0.0, "bend": None}
     dt = np.diff(t)
+    chord = np.diff(r, axis=0)
+    chord_m = np.linalg.norm(chord, axis=1)
     if track.u is not None:
         gamma = np.sqrt(1.0 + np.einsum("ij,ij->i", track.u, track.u))
         velocity = c * track.u / gamma[:, None]
-        acceleration = _derivative(t, velocity, 1)
-        facts["gamma_range"] = [float(gamma.min()), float(gamma.max())]
     else:
-        chord = np.linalg.norm(np.diff(r, axis=0), axis=1) / dt
-        chord_gamma = 1.0 / np.sqrt(1.0 - (chord / c) ** 2)
-        facts["gamma_range"] = [float(chord_gamma.min()), float(chord_gamma.max())]
-        velocity = _derivative(t, r, 1)
-        acceleration = _derivative(t, r, 2)
-        beta2 = np.einsum("ij,ij->i", velocity, velocity) / c**2
-        # an interpolating spline may overshoot c between coarse samples: fall back to
-        # the (slower) chord speeds there
-        slow_beta2 = (np.maximum(np.r_[chord, chord[-1]], np.r_[chord[0], chord]) / c) ** 2
-        gamma = 1.0 / np.sqrt(1.0 - np.where(beta2 < 1.0, beta2, slow_beta2))
-    facts["peak_acceleration"] = float(np.linalg.norm(acceleration, axis=1).max())
-    speed = np.linalg.norm(velocity, axis=1)
-    moving = speed > 0
-    direction = np.zeros_like(velocity)
-    direction[moving] = velocity[moving] / speed[moving, None]
-    a_along = np.einsum("ij,ij->i", acceleration, direction)
-    a_perp = np.linalg.norm(acceleration - a_along[:, None] * direction, axis=1)
-    step = np.maximum(np.r_[dt, dt[-1]], np.r_[dt[0], dt])  # widest step next to a sample
-    # finite-difference noise: round-off of u, or of the positions over one step length
-    noise = 256 * np.finfo(float).eps
-    if track.u is None:
-        extent = float(np.abs(r).max())
-        with np.errstate(divide="ignore"):
-            noise = noise * extent / (speed * step)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        turn = a_perp * step / speed
-    bent = moving & (turn > np.maximum(MIN_TURN_RAD, noise))
-    if not bent.any():
+        speed = np.minimum(chord_m / dt, c * (1 - 1e-16))
+        chord_gamma = 1.0 / np.sqrt(1.0 - (speed / c) ** 2)
+        gamma = np.maximum(np.r_[chord_gamma, chord_gamma[-1]], np.r_[chord_gamma[0],
+                                                                        chord_gamma])
+        velocity = np.r_[chord / dt[:, None], chord[-1:] / dt[-1]]
+    facts["gamma_range"] = [float(gamma.min()), float(gamma.max())]
+    accel = np.linalg.norm(np.diff(velocity, axis=0), axis=1) / dt
+    facts["peak_acceleration"] = float(accel.max()) if accel.size else 0.0
+    radius, k = _sampled_radius(track, velocity, chord, chord_m)
+    if k is None:
         return facts
-    radius = np.full_like(speed, np.inf)
-    radius[bent] = speed[bent] ** 2 / a_perp[bent]
-    k = int(np.argmin(radius))
-    omega_c = 3.0 * gamma[k] ** 3 * c / (2.0 * radius[k])  # Jackson eq. 14.85
-    facts["bend"] = {"particle": track.particle, "t_s": float(t[k]),
-                     "radius_m": float(radius[k]), "gamma": float(gamma[k]),
+    g = float(0.5 * (gamma[k] + gamma[k + 1]))
+    omega_c = 3.0 * g**3 * c / (2.0 * radius)  # Jackson eq. 14.85
+    facts["bend"] = {"particle": track.particle, "t_s": float(0.5 * (t[k] + t[k + 1])),
+                     "radius_m": float(radius), "gamma": g,
                      "critical_frequency_hz": float(omega_c / (2 * math.pi))}
-    needed = STEP_FRACTION * radius / (c * gamma)  # inf where straight
-    ratio = step / needed
-    j = int(np.argmax(ratio))
-    if ratio[j] > 1.0:
-        factor = math.ceil(ratio[j] * (1 - 1e-12))
-        advice = f"write tracks at least {factor}x more often"
-        if track.u is None:
-            advice += " or provide ux, uy, uz"
-        facts["problem"] = {
-            "particle": track.particle, "t_s": float(t[j]), "step_s": float(step[j]),
-            "needed_step_s": float(needed[j]), "factor": factor,
-            "message": (f"particle {track.particle}: samples every {_si(step[j], 's')} but "
-                        f"the bend at t = {t[j]:.4g} s needs at most {_si(needed[j], 's')}; "
-                        f"{advice}."),
-        }
     return facts
 
 
-def _derivative(t, values, order):
-    """d^order values / dt^order at the samples, from an interpolating spline of degree
-    up to 5 (one-sided differences would blur a coarsely sampled bend)."""
-    from scipy.interpolate import make_interp_spline
+def _sampled_radius(track, velocity, chord, chord_m):
+    """(radius_m, interval) of the sharpest bend the samples show, or (inf, None): from
+    the turn between sampled velocities over each chord (with momenta), else from the
+    circle through three neighbouring positions (the interval after its first point)."""
+    if track.u is not None:
+        speed = np.linalg.norm(velocity, axis=1)
+        unit = np.divide(velocity, speed[:, None], out=np.zeros_like(velocity),
+                         where=speed[:, None] > 0)
+        half = 0.5 * np.linalg.norm(unit[1:] - unit[:-1], axis=1)  # sin(φ/2)
+        floor, limit = MIN_TURN_RAD, MAX_HALF_TURN_SIN
+    else:
+        if chord.shape[0] < 2:
+            return math.inf, None
+        a, b = chord[:-1], chord[1:]
+        both = np.linalg.norm(a, axis=1) * np.linalg.norm(b, axis=1)
+        # circumradius |a||b||a+b| / (2|a×b|); sin of the turn between the chords
+        half = np.divide(np.linalg.norm(np.cross(a, b), axis=1), both,  # sin of the turn
+                         out=np.zeros(len(a)), where=both > 0)
+        half[np.einsum("ij,ij->i", a, b) <= 0] = 1.0  # turned by 90° or more: a reversal
+        limit = 2 * MAX_HALF_TURN_SIN * math.sqrt(1 - MAX_HALF_TURN_SIN**2)  # the same turn
+        chord_m = np.linalg.norm(a + b, axis=1)
+        extent = float(np.abs(track.position_m).max())
+        floor = max(MIN_TURN_RAD, 256 * np.finfo(float).eps * extent
+                    / max(float(chord_m.min()), 1e-300))
+    bent = (half > floor) & (half < limit) & (chord_m > 0)
+    if not bent.any():
+        return math.inf, None
+    radius = np.full(half.shape, np.inf)
+    radius[bent] = chord_m[bent] / (2.0 * half[bent])
+    k = int(np.argmin(radius))
+    return float(radius[k]), k
 
-    degree = min(5, len(t) - 1)
-    if degree < order:
-        return np.zeros_like(values)
-    return make_interp_spline(t, values, k=degree, axis=0).derivative(order)(t)
+
+def _source_facts(path, read_options) -> dict | None:
+    """What the importer tells cheaply about the file through its optional
+    `describe(path, options)` (label -> text; an openPMD series: species, iterations), or
+    None."""
+    from .registry import contained, get_registry
+
+    registry = read_options.get("registry") or get_registry()
+    name = read_options.get("format")
+    info = registry.importer_info(name) if name else registry.importer_for(pathlib.Path(path))
+    describe = getattr(getattr(info, "plugin", None), "describe", None)
+    if describe is None:
+        return None
+    with contained(info, f"describing {path}"):
+        return dict(describe(path, dict(read_options.get("options") or {})))
 
 
 def format_report(report: dict) -> str:
@@ -174,6 +223,8 @@ def format_report(report: dict) -> str:
     lines = [f"run file: {report['run_file']}"] if "run_file" in report else []
     lines += [
         f"track file: {report['path']}",
+        *([f"source: {'; '.join(f'{k} {v}' for k, v in report['source'].items())}"]
+          if report.get("source") else []),
         f"particles: {report['n_particles']} ({plural(report['n_rows'], 'row')}; momentum "
         f"columns {'ux, uy, uz present' if report['has_momentum'] else 'absent'})",
         f"samples per particle: min {spp['min']}, median {spp['median']:g}, max {spp['max']}",
@@ -186,30 +237,55 @@ def format_report(report: dict) -> str:
             source += ", which understate it where bends are sampled coarsely"
         lines.append(f"Lorentz factor: {gamma['min']:.6g} to {gamma['max']:.6g} "
                      f"(from {source})")
-    lines.append(f"peak acceleration: {report['peak_acceleration_m_s2']:.4g} m/s^2")
+    lines.append(f"peak acceleration: {report['peak_acceleration_m_s2']:.4g} m/s^2 "
+                 "(between samples)")
     bend = report["strongest_bend"]
     if bend is None:
-        lines.append("bends: none, every track is straight: nothing to resolve.")
-        return "\n".join(lines)
-    lines.append(
-        f"strongest bend: particle {bend['particle']} at t = {bend['t_s']:.6g} s, radius "
-        f"{_si(bend['radius_m'], 'm')}, Lorentz factor {bend['gamma']:.4g}, critical "
-        f"frequency {_si(bend['critical_frequency_hz'], 'Hz')}")
-    lines.append(f"highest critical frequency: {_si(report['max_critical_frequency_hz'], 'Hz')}"
-                 f" ({plural(report['n_bent'], 'bent track')}, "
-                 f"{plural(report['n_straight'], 'straight track')})")
-    rule = (f"steps at most {report['step_fraction']:g} of the formation time rho/(c gamma), "
-            "common practice")
-    if report["resolved"]:
-        lines.append(f"sampling: resolves every bend ({rule}).")
+        lines.append("bends: none, every track is straight.")
     else:
-        lines.append(f"sampling: {plural(report['n_problems'], 'track')} too coarse ({rule}):")
+        lines.append(
+            f"strongest bend: particle {bend['particle']} at t = {bend['t_s']:.6g} s, radius "
+            f"{_si(bend['radius_m'], 'm')}, Lorentz factor {bend['gamma']:.4g}, critical "
+            f"frequency {_si(bend['critical_frequency_hz'], 'Hz')} (from the samples)")
+        lines.append(f"highest critical frequency: "
+                     f"{_si(report['max_critical_frequency_hz'], 'Hz')} "
+                     f"({plural(report['n_bent'], 'bent track')}, "
+                     f"{plural(report['n_straight'], 'straight track')})")
+    lines += _slip_lines(report)
+    if report["resolved"]:
+        lines.append("sampling: resolves the motion of every track.")
+    else:
+        lines.append(f"sampling: {plural(report['n_problems'], 'track')} not resolved "
+                     "(README, 'Motion between samples'):")
         lines.extend(f"  {p['message']}" for p in report["problems"])
-        hidden = report["n_problems"] - len(report["problems"])
-        if hidden > 0:
-            lines.append(f"  ... and {plural(hidden, 'more track')} like "
-                         f"{'this' if hidden == 1 else 'these'}.")
+        lines += _hidden(report["n_problems"], len(report["problems"]))
     return "\n".join(lines)
+
+
+def _slip_lines(report: dict) -> list[str]:
+    against = report["slip_judged_against"]
+    if report["resolution_s"] is not None:
+        against += f" ({_si(report['resolution_s'], 's')})"
+    lines = []
+    if report["largest_slips"]:
+        worst = report["largest_slips"][0]
+        lines.append(f"slip of positions against momenta: largest {_si(worst['slip_s'], 's')} "
+                     f"(particle {worst['particle']} at t = {worst['t_s']:.6g} s), "
+                     f"{worst['fraction']:.3g} of {against}; a run refuses a track above "
+                     f"{report['slip_fraction_allowed']:g} of its resolution")
+    if report["valid"]:
+        lines.append(f"validity: every track is accepted (judged against {against}).")
+    else:
+        lines.append(f"validity: {plural(report['n_refused'], 'track')} refused, judged "
+                     f"against {against}:")
+        lines.extend(f"  error: {p['message']}" for p in report["refused"])
+        lines += _hidden(report["n_refused"], len(report["refused"]))
+    return lines
+
+
+def _hidden(total: int, listed: int) -> list[str]:
+    hidden = total - listed
+    return [f"  ... and {plural(hidden, 'more track')}."] if hidden > 0 else []
 
 
 _PREFIXES = [(1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"),

@@ -127,8 +127,9 @@ def _ballistic_retarded(t_obs, observers, r_end, beta_end, inv_g2, t_end, far):
 
 
 def source_span(motion: Motion, group, edge_lo, edge_hi, far, extend: str):
-    """Source-time interval whose light covers observer times [edge_lo, edge_hi] at every
-    point (conservative: it may be wider)."""
+    """(span, seen): the source-time interval (t_lo, t_hi) whose light covers observer
+    times [edge_lo, edge_hi] at every point (conservative: it may be wider), and per point
+    the source times (seen_lo (P,), seen_hi (P,)) whose light reaches it in its window."""
     r_ends, beta_ends, g_ends, _ = motion.evaluate(np.array([motion.t_first, motion.t_last]))
     lo = _ballistic_retarded(edge_lo, group.points_m, r_ends[0], beta_ends[0], g_ends[0],
                              motion.t_first, far)
@@ -142,10 +143,9 @@ def source_span(motion: Motion, group, edge_lo, edge_hi, far, extend: str):
         lo[inside_lo] = _retarded_inside(motion, group, edge_lo, inside_lo, far)
     if inside_hi.any():
         hi[inside_hi] = _retarded_inside(motion, group, edge_hi, inside_hi, far)
-    t_lo, t_hi = float(lo.min()), float(hi.max())
     if extend == "none":
-        t_lo, t_hi = max(t_lo, motion.t_first), min(t_hi, motion.t_last)
-    return min(t_lo, motion.t_last), max(t_hi, motion.t_first)
+        lo, hi = np.maximum(lo, motion.t_first), np.minimum(hi, motion.t_last)
+    return (float(lo.min()), float(hi.max())), (lo, hi)
 
 
 def _retarded_inside(motion, group, edges, mask, far):
@@ -158,18 +158,20 @@ def _retarded_inside(motion, group, edges, mask, far):
                          far_distance_m=distance[mask], origin_m=origin)
 
 
-def _check_reach(positions_m, group, motion, far):
-    """ObserverError if the polyline through the source samples comes within
-    REACH_DISTANCE_M of a point (near field only: far-field points are at infinity)."""
+def _check_reach(t, positions_m, group, motion, far, seen):
+    """ObserverError if the polyline through the source samples whose light a point sees
+    in its window (`seen`: per point, those source times) comes within REACH_DISTANCE_M of
+    it (near field only: far-field points are at infinity). A point the track passed
+    before (or passes after) the light it sees left is not reached."""
     if far is not None:
         return
     distance_m = np.empty(group.n_points)
-    sampling.closest_approach(positions_m, group.points_m, distance_m)
+    sampling.closest_approach(t, positions_m, group.points_m, seen[0], seen[1], distance_m)
     if distance_m.min() < REACH_DISTANCE_M:
         point = int(np.argmin(distance_m))
         raise ObserverError(
             f"observer group '{group.name}', point {point} at {group.points_m[point].tolist()} m:"
-            f" particle {motion.particle} reaches it (closest approach "
+            f" particle {motion.particle} reaches it during the time window (closest approach "
             f"{distance_m[point]:.3g} m, extension included); the field there is singular. "
             "Move the point off the track")
 
@@ -198,8 +200,15 @@ def _split_track_ends(t, state, motion):
     return t, (pos, beta, inv_g2, beta_dot)
 
 
-def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
-    """Source times, adaptively refined, and the motion at them."""
+def _neighbours(t):
+    """Source times of each sample's neighbours (its own at the ends)."""
+    return np.concatenate([t[:1], t[:-1]]), np.concatenate([t[1:], t[-1:]])
+
+
+def source_samples(motion: Motion, group, span, settings: FieldSettings, far, seen):
+    """Source times, adaptively refined, and the motion at them. `seen` (seen_lo (P,),
+    seen_hi (P,)): the source times whose light each point sees in its window; only there
+    does a point's distance limit the step (and count for the reach check)."""
     t_lo, t_hi = span
     knots = motion.track.t_s
     inner = knots[(knots > t_lo) & (knots < t_hi)]
@@ -210,18 +219,24 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
     t = t[(t >= t_lo) & (t <= t_hi)]
     targets = far[0] if far is not None else group.points_m
     state = motion.evaluate(t)
-    limits = np.empty(t.size)
     resolution = settings.resolution_s()
-    sampling.source_step_limits(*state, targets, far is not None, resolution,
-                                SAMPLES_PER_BIN, ANGLE_TOLERANCE, limits)
-    _check_reach(state[0], group, motion, far)
+
+    def step_limits(times, motion_state, before, after):
+        limits = np.empty(times.size)
+        sampling.source_step_limits(*motion_state, before, after, targets, seen[0], seen[1],
+                                    far is not None, resolution, SAMPLES_PER_BIN,
+                                    ANGLE_TOLERANCE, limits)
+        return limits
+
+    limits = step_limits(t, state, *_neighbours(t))
+    _check_reach(t, state[0], group, motion, far, seen)
     for _ in range(MAX_REFINEMENTS):
         allowed = np.minimum(limits[:-1], limits[1:])
         pieces = np.ceil(np.diff(t) / allowed * (1.0 - 1e-12))
         pieces = np.where(np.isfinite(pieces), pieces, 1.0)
         bad = np.flatnonzero(pieces > 1.0)
         if bad.size == 0:
-            _check_reach(state[0], group, motion, far)
+            _check_reach(t, state[0], group, motion, far, seen)
             return _split_track_ends(t, state, motion)
         # an interval needing few pieces is split evenly; one needing many is halved, so
         # that a long interval whose limit is small at one end only (a ballistic
@@ -237,9 +252,7 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
         rank = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts) + 1
         new_t = starts + widths * rank
         new_state = motion.evaluate(new_t)
-        new_limits = np.empty(new_t.size)
-        sampling.source_step_limits(*new_state, targets, far is not None, resolution,
-                                    SAMPLES_PER_BIN, ANGLE_TOLERANCE, new_limits)
+        new_limits = step_limits(new_t, new_state, new_t - widths, new_t + widths)
         order = np.argsort(np.concatenate([t, new_t]), kind="stable")
         t = np.concatenate([t, new_t])[order]
         state = tuple(np.concatenate([old, new])[order] for old, new in zip(state, new_state,
@@ -249,7 +262,49 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far):
                         f"{MAX_REFINEMENTS} refinements")
 
 
+def _accelerated_part(span, seen, motion: Motion):
+    """Far field: the part of `span` (and of each point's `seen` window) on the sampled
+    track, or (None, None). The radiation term vanishes where β̇ = 0, so the ballistic
+    extensions send no far field (their primitive n×(n×β)/κ is constant)."""
+    t_lo, t_hi = max(span[0], motion.t_first), min(span[1], motion.t_last)
+    if not t_lo < t_hi:
+        return None, None
+    return (t_lo, t_hi), (np.clip(seen[0], t_lo, t_hi), np.clip(seen[1], t_lo, t_hi))
+
+
+def _radiation_stops(t, state, motion: Motion):
+    """Far field: where the samples start at the track's first sample (end at its last),
+    a copy with β̇ = 0 goes before (after) it, so that the field drops to zero there rather
+    than its end value being held to the window's edge (bins and spectra stay exact)."""
+    head = t.size > 0 and t[0] == motion.t_first
+    tail = t.size > 0 and t[-1] == motion.t_last
+    if not (head or tail):
+        return t, state
+    where = ([0] if head else []) + ([t.size] if tail else [])
+    source = ([0] if head else []) + ([t.size - 1] if tail else [])
+    pos, beta, inv_g2, beta_dot = state
+    return np.insert(t, where, t[source]), (
+        np.insert(pos, where, pos[source], axis=0), np.insert(beta, where, beta[source], axis=0),
+        np.insert(inv_g2, where, inv_g2[source]),
+        np.insert(beta_dot, where, np.zeros((len(where), 3)), axis=0))
+
+
 # ---------------------------------------------------------------------------- engine
+def _extension_ends(motion: Motion, extend: str) -> np.ndarray:
+    """(2, deposit.END_COLUMNS): time, position, velocity and 1/γ² of the track's first and
+    last sample, where its ballistic extensions start (none with extend = "none")."""
+    ends = np.empty((2, deposit.END_COLUMNS))
+    times = np.array([motion.t_first, motion.t_last])
+    r, beta, inv_g2, _ = motion.evaluate(times)
+    ends[:, deposit.END_T] = times
+    ends[:, deposit.END_X:deposit.END_X + 3] = r
+    ends[:, deposit.END_BX:deposit.END_BX + 3] = beta
+    ends[:, deposit.END_IG2] = inv_g2
+    if extend == "none":
+        ends[:, deposit.END_T] = (-np.inf, np.inf)
+    return ends
+
+
 class FieldAccumulator:
     """Bin integrals of one group, to which chunks of particles are added."""
 
@@ -277,14 +332,22 @@ class FieldAccumulator:
     def add(self, motion: Motion) -> None:
         edge_lo = self.edge0
         edge_hi = self.edge0 + self.n_bins * self.settings.step_s
-        span = source_span(motion, self.group, edge_lo, edge_hi, self.far,
-                           self.settings.extend)
-        t, state = source_samples(motion, self.group, span, self.settings, self.far)
+        span, seen = source_span(motion, self.group, edge_lo, edge_hi, self.far,
+                                 self.settings.extend)
+        if self.far is not None:
+            span, seen = _accelerated_part(span, seen, motion)
+            if span is None:
+                return  # the window sees only extensions: no radiation
+        t, state = source_samples(motion, self.group, span, self.settings, self.far, seen)
+        if self.far is not None:
+            t, state = _radiation_stops(t, state, motion)
         scale = motion.track.charge_c * motion.track.weight
+        ends = _extension_ends(motion, self.settings.extend)
         if self.spectra is not None:
             self.spectra.add(t, state, motion.track.charge_c, motion.track.weight)
         self.fluence.add(t, state, motion.track.charge_c, motion.track.weight)
-        self._pending.append((t, state, scale))
+        reference = motion.evaluate_referenced(t)[4:]  # observer times keep their digits
+        self._pending.append((t, state, scale, ends, reference))
         self._pending_samples += t.size
         self.source_samples += t.size
         if self._pending_samples >= SAMPLES_PER_KERNEL_CALL:
@@ -298,15 +361,19 @@ class FieldAccumulator:
             [p[1][i] for p in self._pending])) for i in range(4))
         offsets = np.concatenate([[0], np.cumsum([p[0].size for p in self._pending])])
         scale = np.array([p[2] for p in self._pending])
+        ends = np.stack([p[3] for p in self._pending])
+        reference = tuple(np.ascontiguousarray(np.concatenate([p[4][i] for p in self._pending]))
+                          for i in range(3))
         args = (t, pos, beta, inv_g2, beta_dot, offsets.astype(np.int64), scale)
         if self.far is None:
             deposit.deposit_near(*args, self.group.points_m, self.edge0, self.settings.step_s,
-                                 self.n_bins, self.integrals)
+                                 self.n_bins, self.integrals, ends, reference)
         else:
             directions, distance, origin = self.far
             origins = np.ascontiguousarray(np.broadcast_to(origin, directions.shape))
             deposit.deposit_far(*args, directions, distance, origins, self.edge0,
-                                self.settings.step_s, self.n_bins, self.integrals)
+                                self.settings.step_s, self.n_bins, self.integrals, ends,
+                                reference)
         self._pending = []
         self._pending_samples = 0
 

@@ -45,6 +45,11 @@ def lagfield_register_importers():
       ``options["particle_range"]`` is ``(low, high)`` it may leave out pieces that hold no
       particle id in that range (a distributed worker reads only its own particles); a
       piece then says where it starts with ``frame.attrs["first_row"]`` (data row from 1).
+    - ``series`` (bool, optional): True when ``path`` may name a set of files (a pattern
+      such as ``data_%T.h5``) or a directory rather than one regular file; lagfield then
+      leaves checking that it exists to ``can_read`` and ``iter_batches``.
+    - ``describe(path, options) -> dict`` (optional): a few facts read cheaply from the
+      file's metadata (label -> text), shown by ``lagfield inspect``.
 
     Momenta sampled at other times than positions: a frame may carry
     ``frame.attrs["u_offset_s"]`` (float, seconds): ux, uy, uz of a row were sampled at

@@ -185,6 +185,12 @@ class Motion:
         self.integral_m = integral
         resolved = np.linalg.norm(slip, axis=1) > floor_s
         self._slip = np.ascontiguousarray(np.where(resolved[:, None], slip, 0.0))
+        # where a slip is rounding and left out, interval i ends a rounding error away from
+        # sample i+1: the offset of each interval's start from its sample that keeps the
+        # motion continuous (its light times too, at γ ≳ 10⁴ where 1e-13 m is visible)
+        reached = integral + C * self._slip - chord
+        self._start_offset = np.zeros((t.size, 3))
+        np.cumsum(reached, axis=0, out=self._start_offset[1:])
         self._breaks = breaks
         self._interval_of = interval_of.astype(np.int64)
         self._knots = np.ascontiguousarray(t)
@@ -194,20 +200,42 @@ class Motion:
 
     # ------------------------------------------------------------------ evaluation
     def evaluate(self, t_s):
+        return self.evaluate_referenced(t_s)[:4]
+
+    def evaluate_referenced(self, t_s):
+        """`evaluate` and, per time, the track sample its position is measured from:
+        (position_m, beta, inv_gamma2, beta_dot_per_s, ref_t_s (K,), ref_m (K, 3),
+        displacement_m (K, 3)), the displacement r − ref formed without the (possibly
+        large) reference position, so that it keeps its relative precision (with momenta,
+        it includes the offset that keeps the motion continuous where the sampled
+        positions are rounded: ref + displacement may differ from position_m by it). On the
+        ballistic extensions the reference is the track's end sample."""
         t_s = np.ascontiguousarray(np.atleast_1d(np.asarray(t_s, dtype=float)))
         pos = np.empty((t_s.size, 3))
         beta = np.empty((t_s.size, 3))
         inv_g2 = np.empty(t_s.size)
         beta_dot = np.empty((t_s.size, 3))
+        ref = np.empty(t_s.size, dtype=np.int64)
+        disp = np.empty((t_s.size, 3))
         ends = (self._ends_r, self._ends_beta, self._ends_inv_g2)
         if self.has_momentum:
             kernels.evaluate_momenta(t_s, self._breaks, self._interval_of, self._knots,
                                      self._knot_r, self._slip, self._u_coef, self._path, *ends,
-                                     pos, beta, inv_g2, beta_dot)
+                                     pos, beta, inv_g2, beta_dot, ref, disp)
+            ref_t, ref_r = self._knots, self._knot_r
+            disp += np.where(ref[:, None] >= 0, self._start_offset[np.maximum(ref, 0)], 0.0)
         else:
             kernels.evaluate_positions(t_s, self._breaks, self._coef, *ends, pos, beta,
-                                       inv_g2, beta_dot)
-        return pos, beta, inv_g2, beta_dot
+                                       inv_g2, beta_dot, ref, disp)
+            ref_t, ref_r = self._breaks, self._coef[:, 0, :]
+        extension = ref < 0
+        before = t_s < self.t_first
+        ref_t = np.where(extension, np.where(before, self.t_first, self.t_last),
+                         ref_t[np.maximum(ref, 0)])
+        ref_r = np.where(extension[:, None], np.where(before[:, None], *self._ends_r[:, None]),
+                         ref_r[np.maximum(ref, 0)])
+        disp = np.where(extension[:, None], pos - ref_r, disp)
+        return pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp
 
     # ------------------------------------------------------------------ checks
     def check_speed(self) -> None:

@@ -7,39 +7,24 @@ import time
 from collections.abc import Mapping
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 
 from . import config as config_module
 from .budget import check_memory
+from .detectors import detector_tables
 from .distributed import check_scheduler_address, check_workers
 from .engine import FieldSettings, TrackEnds, compute_fields, group_windows
-from .errors import ConfigError
+from .errors import ConfigError, DetectorError
 from .fluence import fluence_table
 from .observers import build_group
 from .outputs import guarded, open_output, result_bytes
 from .registry import get_registry
+from .resolution import ResolutionAudit, ShortTracks
 from .signals import Signals
 from .spectra import SpectrumSettings, frequency_list
 from .summary import run_summary
+from .tables import fields_table, spectra_table
 from .tracks import open_tracks
-
-FIELD_COLUMNS = ["Ex", "Ey", "Ez", "Bx", "By", "Bz"]
-
-
-def fields_table(results) -> pd.DataFrame:
-    """SPEC's fields table from the engine's GroupFields."""
-    frames = []
-    for result in results:
-        for point in range(result.group.n_points):
-            n = int(result.n_bins[point])
-            values = np.concatenate([result.e_v_per_m[point, :n], result.b_t[point, :n]], axis=1)
-            frame = pd.DataFrame(values, columns=FIELD_COLUMNS)
-            frame.insert(0, "t", result.times(point))
-            frame.insert(0, "point", np.int64(point))
-            frame.insert(0, "observer", result.group.name)
-            frames.append(frame)
-    return pd.concat(frames, ignore_index=True)
 
 
 def settings_from(config):
@@ -53,6 +38,7 @@ def settings_from(config):
                            stop_s=config.time.stop_s, align=config.time.align,
                            far_field=config.far_field, degree=config.motion.degree,
                            extend=config.motion.extend, smoothing_m=config.motion.smoothing_m,
+                           u_offset_s=config.tracks.u_offset_s,
                            max_frequency_hz=None if spectrum is None
                            else float(spectrum.frequencies_hz.max()))
     return fields, spectrum
@@ -122,10 +108,17 @@ def run(source, *, base_dir=None, overwrite: bool = False, write: bool = True,
     exporters = [registry.exporter_info(name) for name in config.output.formats] if write else []
     target = open_output(config.output.dir, overwrite=overwrite) if write else None
     groups = [build_group(observer) for observer in config.observers]
-    options = dict(config.tracks.read_options(), min_samples=config.motion.degree + 1,
-                   registry=registry)
+    options = dict(config.tracks.read_options(), min_samples=2, registry=registry)
     collected = TrackEnds()  # gathered during the validation pass: no pass of its own
-    tracks = open_tracks(config.tracks.path, visit=collected.add, **options)
+    audits = (ShortTracks(config.motion.degree), ResolutionAudit(config.motion.degree))
+
+    def visit(track):
+        collected.add(track)
+        for audit in audits:
+            audit.add(track)
+
+    tracks = open_tracks(config.tracks.path, visit=visit, **options)
+    tracks.warnings = [w for audit in audits for w in audit.warnings()]
     ends, particle_ids = collected.ends(), collected.ids()
     timings["read_s"] = time.perf_counter() - started
     settings, spectrum = settings_from(config)
@@ -153,9 +146,17 @@ def run(source, *, base_dir=None, overwrite: bool = False, write: bool = True,
     observers = pd.concat([group.table() for group in groups], ignore_index=True)
     spectra = None
     if spectrum is not None:
-        spectra = pd.concat([r.spectra.table() for r in results], ignore_index=True)
+        spectra = spectra_table([r.spectra for r in results])
     signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra,
                       fluence=fluence_table(results))
+    if config.detectors:  # checked against the signal now, before anything is written
+        t0 = time.perf_counter()
+        by_group = {result.group.name: result for result in results}
+        try:
+            signals.voltages, signals.digitized = detector_tables(config.detectors, by_group)
+        except DetectorError as exc:
+            raise DetectorError(f"{run_file or 'run'}: {exc}") from None
+        timings["detectors_s"] = time.perf_counter() - t0
     timings["total_s"] = time.perf_counter() - started
     signals.summary = run_summary(run_file, config, tracks=tracks, results=results,
                                   registry=registry, exporters=exporters, timings=timings,

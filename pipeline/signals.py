@@ -20,6 +20,10 @@ class Signals:
     fluence: observer, point, fluence ε0c∫|E|²dt over the window (J/m²), dW_dOmega (J/sr,
         spheres: R² × fluence), method (str: how it was obtained, see lagfield.fluence).
     summary: a dict of run facts (version, run file, checksums, warnings, timings).
+    voltages: detector (str), point, t (s), V (V): each detector's analog voltage on the
+        field's time grid; None when the run has no [[detectors]].
+    digitized: detector, point, t (s), code (int, ADC counts), V (V, code × LSB); None when
+        no detector has a digitizer.
     """
 
     observers: pd.DataFrame
@@ -27,14 +31,16 @@ class Signals:
     spectra: pd.DataFrame | None = None
     summary: dict = dataclasses.field(default_factory=dict)
     fluence: pd.DataFrame | None = None
+    voltages: pd.DataFrame | None = None
+    digitized: pd.DataFrame | None = None
 
     def tables(self) -> dict[str, pd.DataFrame]:
-        """The tables that exist, by their file stem ("observers", "fields", "spectra")."""
+        """The tables that exist, by their file stem ("observers", "fields", "spectra",
+        "fluence", "voltages", "digitized")."""
         out = {"observers": self.observers, "fields": self.fields}
-        if self.spectra is not None:
-            out["spectra"] = self.spectra
-        if self.fluence is not None:
-            out["fluence"] = self.fluence
+        optional = {"spectra": self.spectra, "fluence": self.fluence,
+                    "voltages": self.voltages, "digitized": self.digitized}
+        out.update({name: table for name, table in optional.items() if table is not None})
         return out
 
     def __getitem__(self, name: str) -> pd.DataFrame:

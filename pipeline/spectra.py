@@ -4,26 +4,32 @@ spectral fluence F(f) = 2 ε0 c |Ẽ(f)|² (J/(m²·Hz)), and R² F on spheres (
 The integral runs over the observer times of the source samples (not over the output
 bins, so there is no sinc attenuation from the step), by the trapezoid rule with its
 Euler–Maclaurin end correction, which splits into two sums of the form Σ c_j e^(−iωt_j):
-any frequency list, linear or logarithmic over many decades, is then one type-3
-nonuniform FFT (finufft) per point, or a direct sum for small problems. The source
-sampling puts at least SAMPLES_PER_PERIOD samples in the period of the top frequency.
+any frequency list, linear or logarithmic over many decades, is then a set of nonuniform
+Fourier sums, evaluated by the route `transforms` predicts to be cheapest (a compiled
+direct sum or a type-3 NUFFT). The source sampling puts at least SAMPLES_PER_PERIOD
+samples in the period of the top frequency.
+
+In a coherent run the sums are linear in the samples of all particles: the accumulator
+keeps the source samples of several particles and, per point, makes one transform over
+all of them (or one per particle, if that is predicted cheaper), when SPECTRUM_BUFFER_SAMPLES
+are held and whenever the spectra are read. An incoherent run needs |Ẽ|² of each particle:
+one transform per particle and point.
 """
 
 from __future__ import annotations
 
+import collections
 import dataclasses
-import functools
 import math
 
 import numpy as np
 from scipy import constants
 
+from . import transforms
 from .kernels import pointwise, quadrature
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
-NUFFT_TOLERANCE = 1e-9
-NUFFT_UPSAMPLING = 1.25  # finufft upsampfac (see _nufft_plan); budget.py sizes its grid
-DIRECT_SUM_LIMIT = 2_000_000  # samples × frequencies below which a direct sum is used
+SPECTRUM_BUFFER_SAMPLES = 1_000_000  # source samples (~100 bytes each) held before a transform
 COULOMB = 1.0 / (4.0 * math.pi * constants.epsilon_0)
 
 
@@ -41,50 +47,55 @@ def frequency_list(start_hz: float, stop_hz: float, count: int, spacing: str) ->
     return np.linspace(start_hz, stop_hz, count)
 
 
-def fourier_sums(t_s: np.ndarray, values: np.ndarray, frequencies_hz: np.ndarray):
-    """S[k, c] = Σ_j values[c, j] exp(−2πi f_k t_j): NUFFT type 3 or a direct sum."""
-    omega = 2.0 * np.pi * frequencies_hz
-    if values.shape[1] == 0:
-        return np.zeros((frequencies_hz.size, values.shape[0]), dtype=complex)
-    centre = 0.5 * (t_s[0] + t_s[-1])
-    x = t_s - centre
-    phase = np.exp(-1j * omega * centre)
-    if t_s.size * frequencies_hz.size <= DIRECT_SUM_LIMIT:
-        sums = np.exp(-1j * np.outer(omega, x)) @ values.T.astype(complex)
-        return sums * phase[:, None]
-    plan = _nufft_plan(values.shape[0])
-    plan.setpts(x, s=omega)
-    sums = plan.execute(np.ascontiguousarray(values, dtype=complex))
-    return sums.T * phase[:, None]
-
-
-@functools.cache
-def _nufft_plan(n_vectors: int):
-    """A reusable type-3 NUFFT plan (its set-up is a tenth of a transform's time).
-    upsampfac 1.25 halves the time of these many-target transforms for an error of about
-    1e-8 of the peak (tests/benchmarks/bench_spectra.py); one thread is fastest here."""
-    import finufft
-
-    return finufft.Plan(3, 1, n_trans=n_vectors, eps=NUFFT_TOLERANCE, isign=-1, nthreads=1,
-                        upsampfac=NUFFT_UPSAMPLING)
-
-
-def window_spectrum(t_obs_s, e_v_per_m, start_s, stop_s, frequencies_hz, taper="none"):
-    """Ẽ(f) (F, 3) of the field samples (t_obs_s (N,), increasing; e (N, 3)) over
-    [start_s, stop_s]."""
+def quadrature_terms(t_obs_s, e_v_per_m, start_s, stop_s, top_hz, taper="none"):
+    """(t (n,), values (n, 6)): the samples inside [start_s, stop_s] (t_obs_s increasing)
+    and the coefficients of the two Fourier sums of the corrected trapezoid rule, the
+    second scaled by 2π·top_hz (so that both weigh alike at the top frequency, where a
+    transform's error relative to its largest input matters most)."""
     first = int(np.searchsorted(t_obs_s, start_s, side="left"))
     last = int(np.searchsorted(t_obs_s, stop_s, side="right"))
     t = t_obs_s[first:last]
     e = e_v_per_m[first:last]
     if t.size < 2:
-        return np.zeros((frequencies_hz.size, 3), dtype=complex)
+        return t[:0], np.empty((0, 6))
     if taper == "hann":
         e = e * (0.5 - 0.5 * np.cos(2.0 * np.pi * (t - start_s) / (stop_s - start_s)))[:, None]
     ab = np.empty((6, t.size))
     quadrature.corrected_trapezoid(t, np.ascontiguousarray(e), start_s, stop_s, ab[:3], ab[3:])
-    sums = fourier_sums(t, ab, frequencies_hz)
-    omega = 2.0 * np.pi * frequencies_hz
-    return sums[:, :3] - 1j * omega[:, None] * sums[:, 3:]
+    ab[3:] *= 2.0 * np.pi * top_hz
+    return t, ab.T
+
+
+def spectrum_of_sums(sums: np.ndarray, frequencies_hz: np.ndarray) -> np.ndarray:
+    """Ẽ (F, 3) of the two sums (F, 6) of `quadrature_terms` (top: frequencies_hz.max())."""
+    top = frequencies_hz.max()
+    ratio = frequencies_hz / top if top > 0 else np.zeros(frequencies_hz.size)  # f = 0 alone
+    return sums[:, :3] - 1j * ratio[:, None] * sums[:, 3:]
+
+
+def window_spectrum(t_obs_s, e_v_per_m, start_s, stop_s, frequencies_hz, taper="none",
+                    route=None):
+    """Ẽ(f) (F, 3) of the field samples (t_obs_s (N,), increasing; e (N, 3)) over
+    [start_s, stop_s]; route: "direct", "nufft" or None (the cheaper)."""
+    t, values = quadrature_terms(t_obs_s, e_v_per_m, start_s, stop_s, frequencies_hz.max(),
+                                 taper)
+    sums = transforms.fourier_sums(t, values, frequencies_hz, route)
+    return spectrum_of_sums(sums, frequencies_hz)
+
+
+def coherent_plan(counts, spans_s, together_span_s, frequencies_hz, model=transforms.COST):
+    """How to sum the spectra of several particles at one point: ("together", route) for
+    one transform over all their samples (count sum(counts), time span together_span_s),
+    or ("each", [route per particle]) for one per particle (counts, spans_s), whichever
+    is predicted cheaper (a tie goes to "together")."""
+    routes = [transforms.choose(n, frequencies_hz, span, model)
+              for n, span in zip(counts, spans_s, strict=True)]
+    each_s = sum(transforms.predicted_s(n, frequencies_hz, span, route, model)
+                 for n, span, route in zip(counts, spans_s, routes, strict=True))
+    total = int(sum(counts))
+    route = transforms.choose(total, frequencies_hz, together_span_s, model)
+    together_s = transforms.predicted_s(total, frequencies_hz, together_span_s, route, model)
+    return ("together", route) if together_s <= each_s else ("each", routes)
 
 
 def fluence(spectrum: np.ndarray) -> np.ndarray:
@@ -93,7 +104,8 @@ def fluence(spectrum: np.ndarray) -> np.ndarray:
 
 
 class SpectrumAccumulator:
-    """Spectra of one group's points, to which particles' source samples are added."""
+    """Spectra of one group's points, to which particles' source samples are added.
+    `transforms` counts the transforms made by route ("direct", "nufft")."""
 
     def __init__(self, group, start_s, stop_s, settings: SpectrumSettings, far=None):
         self.group = group
@@ -102,42 +114,101 @@ class SpectrumAccumulator:
         self.settings = settings
         self.far = far
         n_f = settings.frequencies_hz.size
-        self.spectrum = np.zeros((group.n_points, n_f, 3), dtype=complex)
+        self._spectrum = np.zeros((group.n_points, n_f, 3), dtype=complex)
         self.fluence = np.zeros((group.n_points, n_f))
+        self.transforms = collections.Counter()
+        self._pending = []  # (t, state, field scale) of particles not yet transformed
+        self._pending_samples = 0
+
+    @property
+    def spectrum(self) -> np.ndarray:
+        """Ẽ (P, F, 3), V·s/m, of every particle added so far (coherent runs)."""
+        self.flush()
+        return self._spectrum
+
+    @spectrum.setter
+    def spectrum(self, value) -> None:
+        self.flush()
+        self._spectrum = value
+
+    def __getstate__(self):  # a pickled accumulator (sent between processes) is flushed
+        self.flush()
+        return dict(self.__dict__)
 
     def add(self, t, state, charge_c: float, weight: float) -> None:
-        t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
-        for p in range(self.group.n_points):
-            pointwise.point_fields(t, state, p, self.group.points_m, self.far, t_obs, e, kappa)
-            single = window_spectrum(t_obs, e * (COULOMB * charge_c), self.start_s[p],
-                                     self.stop_s[p], self.settings.frequencies_hz,
-                                     self.settings.taper)
-            if self.settings.coherent:
-                self.spectrum[p] += weight * single
-            else:
-                self.fluence[p] += weight * fluence(single)
-
-    def table(self):
-        """SPEC's spectra table for this group."""
-        import pandas as pd
-
-        f = self.settings.frequencies_hz
-        n_f = f.size
-        n_p = self.group.n_points
-        frame = pd.DataFrame({"observer": self.group.name,
-                              "point": np.repeat(np.arange(n_p, dtype=np.int64), n_f),
-                              "f": np.tile(f, n_p)})
         if self.settings.coherent:
-            flat = self.spectrum.reshape(n_p * n_f, 3)
+            self._pending.append((t, state, COULOMB * charge_c * weight))
+            self._pending_samples += t.size
+            if self._pending_samples >= SPECTRUM_BUFFER_SAMPLES:
+                self.flush()
+            return
+        for p in range(self.group.n_points):
+            single = self._transform(*self._terms(t, state, COULOMB * charge_c, p), None)
+            self.fluence[p] += weight * fluence(single)
+
+    def flush(self) -> None:
+        """Transform the held particles' samples into the coherent spectra."""
+        if not self._pending:
+            return
+        pending, self._pending, self._pending_samples = self._pending, [], 0
+        f = self.settings.frequencies_hz
+        for p in range(self.group.n_points):
+            terms = [self._terms(t, state, scale, p) for t, state, scale in pending]
+            terms = [(t, values) for t, values in terms if t.size]
+            if not terms:
+                continue
+            spans = [float(t[-1] - t[0]) for t, _ in terms]
+            together_span = (max(float(t[-1]) for t, _ in terms)
+                             - min(float(t[0]) for t, _ in terms))
+            how, routes = coherent_plan([t.size for t, _ in terms], spans, together_span, f)
+            if how == "together":
+                self._spectrum[p] += self._transform(np.concatenate([t for t, _ in terms]),
+                                                     np.concatenate([v for _, v in terms]),
+                                                     routes)
+            else:
+                for (t, values), route in zip(terms, routes, strict=True):
+                    self._spectrum[p] += self._transform(t, values, route)
+
+    def _terms(self, t, state, scale, p):
+        """(t_obs, values (n, 6)) of one particle's samples at point p, fields × scale."""
+        t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
+        pointwise.point_fields(t, state, p, self.group.points_m, self.far, t_obs, e, kappa)
+        return quadrature_terms(t_obs, e * scale, self.start_s[p], self.stop_s[p],
+                                self.settings.frequencies_hz.max(), self.settings.taper)
+
+    def _transform(self, t, values, route):
+        f = self.settings.frequencies_hz
+        if t.size == 0:
+            return np.zeros((f.size, 3), dtype=complex)
+        if route is None:
+            route = transforms.choose(t.size, f, float(t.max() - t.min()))
+        self.transforms[route] += 1
+        return spectrum_of_sums(transforms.fourier_sums(t, values, f, route), f)
+
+    def columns(self) -> dict:
+        """{point, f, Ex_re … Ez_im (coherent), fluence, dW_df_dOmega (spheres)}: the
+        columns of SPEC's spectra table for this group, as numpy arrays."""
+        f = self.settings.frequencies_hz
+        n_p = self.group.n_points
+        columns = {"point": np.repeat(np.arange(n_p, dtype=np.int64), f.size),
+                   "f": np.tile(f, n_p)}
+        if self.settings.coherent:
+            flat = self.spectrum.reshape(n_p * f.size, 3)
             for i, axis in enumerate("xyz"):
-                frame[f"E{axis}_re"] = flat[:, i].real
-                frame[f"E{axis}_im"] = flat[:, i].imag
+                columns[f"E{axis}_re"] = flat[:, i].real.copy()
+                columns[f"E{axis}_im"] = flat[:, i].imag.copy()
             values = fluence(self.spectrum)
         else:
             values = self.fluence
-        frame["fluence"] = values.reshape(-1)
+        columns["fluence"] = values.reshape(-1)
         if self.group.kind == "sphere":
             offset = self.group.points_m - self.group.origin_m
             radius2 = np.einsum("ij,ij->i", offset, offset)
-            frame["dW_df_dOmega"] = (values * radius2[:, None]).reshape(-1)
-        return frame
+            columns["dW_df_dOmega"] = (values * radius2[:, None]).reshape(-1)
+        return columns
+
+    def table(self):
+        """SPEC's spectra table for this group."""
+        from .tables import spectra_table
+
+        return spectra_table([self])

@@ -1,5 +1,6 @@
 """Plot export: PNG figures of each observer group's waveforms, energy-fluence maps (planes
-and spheres) and, when spectra were computed, spectral fluence and band-fluence maps.
+and spheres), when spectra were computed, spectral fluence and band-fluence maps, and, with
+detectors, each detector's voltage (analog and digitized overlaid).
 
 The fluence maps show the run's `fluence` table (exact from the source motion where it can
 be) and say how it was obtained; without that table they fall back on the bin averages and
@@ -42,6 +43,9 @@ NOISE_PERCENTILE = 1.0  # ... nor below this percentile of the positive values
 ARC_STEP_RAD = math.radians(3.0)  # sphere maps: azimuthal cells drawn as arcs of this step
 FREQUENCY_UNITS = (("PHz", 1e15), ("THz", 1e12), ("GHz", 1e9), ("MHz", 1e6), ("kHz", 1e3),
                    ("Hz", 1.0))
+OHM_UNITS = (("MΩ", 1e6), ("kΩ", 1e3), ("Ω", 1.0), ("mΩ", 1e-3))
+FARAD_UNITS = (("µF", 1e-6), ("nF", 1e-9), ("pF", 1e-12), ("fF", 1e-15))
+DETECTOR_PANELS = 4  # detectors per voltage figure; more go to further figures
 
 
 # ---------------------------------------------------------------------------------------
@@ -589,6 +593,75 @@ def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks, spac
     return figure
 
 
+def _si_text(value: float, units) -> str:
+    """A value in the largest unit of `units` it is at least one of, 4 significant digits."""
+    name, factor = pick_unit(value, units)
+    return f"{value / factor:.4g} {name}"
+
+
+def describe_detector(record: dict | None) -> str:
+    """One line on a detector from its run.json record: sensor (and load), chain, digitizer."""
+    if not record:
+        return ""
+    sensor = record["sensor"]
+    if sensor["kind"] == "electrode":
+        text = f"electrode {sensor['area_m2'] * 1e6:.3g} mm², n̂ = {_vector(sensor['normal'])}"
+        load = [_si_text(sensor["resistance_ohm"], OHM_UNITS)
+                if sensor["resistance_ohm"] is not None else None,
+                _si_text(sensor["capacitance_f"], FARAD_UNITS)
+                if sensor["capacitance_f"] else None]
+        text += ", load " + " ‖ ".join(part for part in load if part)
+    elif sensor["kind"] == "effective_length":
+        text = f"antenna h = {_vector(sensor['length_m'])} m"
+    else:
+        text = f"loop A = {_vector(sensor['area_m2'])} m²"
+    if record.get("chain"):
+        text += "; chain: " + " → ".join(element["kind"] for element in record["chain"])
+    digitizer = record.get("digitizer")
+    if digitizer:
+        rate = _si_text(digitizer["rate_hz"], FREQUENCY_UNITS).replace("Hz", "S/s")
+        text += (f"; digitizer {rate}, "
+                 f"{digitizer['bits']} bits, ±{digitizer['range_v'][1]:.4g} V")
+    return text
+
+
+def plot_detector_traces(names, voltages, digitized, records, max_curves, footer=None):
+    """One panel per detector: its analog voltage (lines) and, with a digitizer, the
+    digitized samples (dots joined by steps, same colour) for up to max_curves points."""
+    figure = _new_figure(9.0, 1.2 + 2.3 * len(names))
+    axes = np.atleast_1d(figure.subplots(len(names), 1, sharex=True, squeeze=False)[:, 0])
+    shown = voltages[voltages["detector"].isin(names)]
+    reference_s, unit_s, time_label = time_scale(shown["t"].to_numpy(dtype=float))
+    for ax, name in zip(axes, names, strict=True):
+        analog = shown[shown["detector"] == name]
+        sampled = None if digitized is None else digitized[digitized["detector"] == name]
+        points = np.unique(analog["point"].to_numpy())
+        picks = representative_points(points, max_curves)
+        for index, point in enumerate(picks):
+            colour = f"C{index % 10}"
+            rows = analog[analog["point"] == point].sort_values("t")
+            ax.plot((rows["t"].to_numpy(dtype=float) - reference_s) / unit_s, rows["V"],
+                    color=colour, linewidth=1.2, label=f"point {point}, analog")
+            if sampled is not None and len(sampled):
+                rows = sampled[sampled["point"] == point].sort_values("t")
+                ax.step((rows["t"].to_numpy(dtype=float) - reference_s) / unit_s, rows["V"],
+                        where="post", color=colour, alpha=0.6, linewidth=0.8, marker=".",
+                        markersize=4, label=f"point {point}, digitized (code × LSB)")
+        note = f" ({len(picks)} of {points.size} points)" if len(picks) < points.size else ""
+        title = f"{name}{note}: {describe_detector(records.get(name))}"
+        ax.set_title("\n".join(textwrap.wrap(title, 110)), fontsize="small")
+        ax.set_ylabel("voltage V (V)")
+        ax.grid(True, alpha=0.3)
+        ax.legend(fontsize="x-small", loc="upper right")
+        _sci(ax)
+        ax.ticklabel_format(axis="x", useOffset=False)
+    axes[-1].set_xlabel(time_label)
+    figure.suptitle("detector voltages: analog on the field's time grid and digitized")
+    if footer:
+        figure.supxlabel("\n".join(textwrap.wrap(footer, 130)), fontsize="small", color="0.35")
+    return figure
+
+
 def band_share(band: np.ndarray, total: np.ndarray) -> tuple[float, float] | None:
     """(lowest, highest) band / total fluence over the points where the total is positive."""
     with np.errstate(divide="ignore", invalid="ignore"):
@@ -618,6 +691,23 @@ class PlotExporter:
         written = []
         for plan in plans:  # every option and band was checked before the first file
             written += self._draw(plan, directory, settings)
+        return written + self._draw_detectors(result, summary, directory, settings)
+
+    def _draw_detectors(self, result, summary, directory, settings) -> list[str]:
+        """detector_voltages.png (then _2, _3 … for more than DETECTOR_PANELS detectors)."""
+        voltages = getattr(result, "voltages", None)
+        if voltages is None or not len(voltages):
+            return []
+        names = list(dict.fromkeys(voltages["detector"]))
+        written = []
+        for page, first in enumerate(range(0, len(names), DETECTOR_PANELS)):
+            figure = plot_detector_traces(names[first:first + DETECTOR_PANELS], voltages,
+                                          getattr(result, "digitized", None),
+                                          summary.get("detectors") or {},
+                                          settings.max_curves, summary.get("note"))
+            suffix = "" if page == 0 else f"_{page + 1}"
+            written.append(_save(figure, directory, f"detector_voltages{suffix}.png",
+                                 settings.dpi))
         return written
 
     def _plan(self, name, result, summary, settings) -> dict:

@@ -395,17 +395,17 @@ def test_inspect_a_run_file_uses_its_tracks_table(tmp_path, capsys):
 
 
 def test_inspect_says_one_track_in_the_singular(tmp_path, capsys):
-    # a coarsely sampled circle (γ = 10, radius 1 m, steps of 10 formation times)
+    # a coarsely sampled circle (γ = 10, radius 1 m, steps of 6 formation times)
     gamma, radius_m = 10.0, 1.0
     beta = np.sqrt(1 - 1 / gamma**2)
-    t = np.arange(40) * 10 * radius_m / (constants.c * gamma)
+    t = np.arange(40) * 6 * radius_m / (constants.c * gamma)
     phase = beta * constants.c / radius_m * t
     pd.DataFrame({"particle": 0, "t": t, "x": radius_m * np.cos(phase),
                   "y": radius_m * np.sin(phase), "z": 0.0}).to_csv(tmp_path / "c.csv",
                                                                    index=False)
     assert cli.main(["inspect", str(tmp_path / "c.csv")]) == 0
     text = capsys.readouterr().out
-    assert "sampling: 1 track too coarse" in text
+    assert "sampling: 1 track not resolved" in text
     assert "(1 bent track, 0 straight tracks)" in text
     assert "(s)" not in text and "1 tracks" not in text
 

@@ -11,7 +11,8 @@ import math
 
 import numpy as np
 import pytest
-from scipy import constants, integrate, optimize
+from analytic_fields import lienard_wiechert_e, retarded_times
+from scipy import constants, integrate
 
 from lagfield.engine import FieldSettings, compute_fields
 from lagfield.errors import MotionError
@@ -22,7 +23,6 @@ from lagfield.tracks import Track
 C = constants.c
 EPS0 = constants.epsilon_0
 Q = -constants.e
-COULOMB = 1.0 / (4.0 * math.pi * EPS0)
 FAR_M = 100.0
 
 
@@ -167,22 +167,9 @@ def circle_track(u_written_at_s: float) -> Track:
 def exact_circle_field(observer, t_obs_s) -> np.ndarray:
     """Liénard–Wiechert E (V/m) of the exact circle (SPEC's formula, Jackson 3rd ed.,
     eq. 14.14) at observer times, retarded time by brentq (scipy) on t′ + R/c = t."""
-    gamma2 = 1.0 / (1.0 - CIRCLE_BETA**2)
-    out = np.empty((len(t_obs_s), 3))
-    for k, t_obs in enumerate(t_obs_s):
-        def residual(t_src, t_obs=t_obs):
-            return t_src + np.linalg.norm(observer - circle_state(t_src)[0][0]) / C - t_obs
-        reach = (np.linalg.norm(observer) + 2 * CIRCLE_RADIUS_M) / C
-        t_src = optimize.brentq(residual, t_obs - reach, t_obs, xtol=1e-24, rtol=1e-15)
-        r, beta, beta_dot = (v[0] for v in circle_state(t_src))
-        d = observer - r
-        distance = np.linalg.norm(d)
-        n = d / distance
-        kappa = 1.0 - n @ beta
-        out[k] = COULOMB * Q * ((n - beta) / (gamma2 * kappa**3 * distance**2)
-                                + np.cross(n, np.cross(n - beta, beta_dot))
-                                / (C * kappa**3 * distance))
-    return out
+    reach = (np.linalg.norm(observer) + 2 * CIRCLE_RADIUS_M) / C
+    t_src = retarded_times(lambda t: circle_state(t)[0], observer, t_obs_s, reach)
+    return lienard_wiechert_e(circle_state, observer, t_src, Q)
 
 
 def test_circle_with_momenta_half_a_step_early_matches_the_exact_field():

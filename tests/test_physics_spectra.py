@@ -18,12 +18,12 @@ relativistic Larmor power.
 
 from __future__ import annotations
 
-import importlib.util
 import math
 from pathlib import Path
 
 import numpy as np
 import pytest
+from scenarios import make_samples_module
 from scipy import constants, integrate, special
 
 from lagfield.engine import FieldSettings, compute_fields
@@ -43,11 +43,7 @@ REPOSITORY = Path(__file__).resolve().parents[1]
 @pytest.fixture(scope="module")
 def samples():
     """sample_data/make_samples.py as a module."""
-    path = REPOSITORY / "sample_data" / "make_samples.py"
-    spec = importlib.util.spec_from_file_location("lagfield_sample_scenarios", path)
-    module = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(module)
-    return module
+    return make_samples_module()
 
 
 def rotation_y(angle_rad: float) -> np.ndarray:

@@ -14,6 +14,20 @@ area ∫E dt of any pulse, however short, is kept whatever the observer step. Be
 source samples the primitive is interpolated in observer time by a cubic Hermite
 polynomial whose end slopes are the pointwise fields, which places bin edges accurately.
 
+Observer times on a ballistic extension are taken relative to the track's end sample e
+(time t_e, distance R_e, κ_e with the end velocity β_e): along a straight line,
+    t − t_e_obs = (t′ − t_e) · (R κ + R_e κ_e)/(R + R_e)     (exactly, with κ = 1 − n·β_e),
+and every factor keeps its relative precision, whereas t′ + R/c loses the digits of a
+retarded time lying microseconds before the observer time (γ ≳ 10⁴). In the far field the
+same holds with t − t_e_obs = (t′ − t_e) κ.
+
+Inside the sampled track, each sample comes with a reference (the track sample starting
+its interval: time t_i, position r_i) and its displacement d = r − r_i, formed without
+adding r_i. Its observer time is taken relative to the reference's, T_i = t_i + R_i/c
+(formed once per reference in double-double arithmetic, Dekker's error-free sum and
+product): t − T_i = (t′ − t_i) + (R − R_i)/c with R − R_i = −d·(2(x − r_i) − d)/(R + R_i),
+so every term keeps its relative precision (in the far field, R − R_i = −n·d).
+
 In the far-field approximation (n and R₀ fixed per point, t = t′ + (R₀ − n·(r − O))/c, the
 radiation term only) the primitive is exactly q/(4πε0 c R₀) · n×(n×β)/κ.
 
@@ -31,7 +45,6 @@ import numba
 import numpy as np
 
 from ._jit import jit
-from .pointwise import field_at
 
 C = 299792458.0  # m/s, scipy.constants.c (kept literal so the kernels need no import)
 
@@ -74,9 +87,9 @@ def _deposit_segment(out_p, ta, tb, ka, kb, dp, ea, eb, w, edge0, step, n_bins):
                                  - h * (previous_h10 * ea[c] + previous_h11 * eb[c]))
 
 
-# ------------------------------------------------------------------ near-field kernel
-# Per point, each block of samples goes through: `_near_times` (observer times and bins;
-# a block that cannot reach the bins stops here), `_near_samples` (per-sample primitive,
+# ------------------------------------------------------------------ the kernel (near and far)
+# Per point, each block of samples goes through: `_times` (observer times and bins;
+# a block that cannot reach the bins stops here), `_samples` (per-sample primitive,
 # integrands, fields), `_near_increments` (per-segment increments) and `_near_deposit`
 # (the only sequential pass). The first three are flat loops that LLVM vectorises (with
 # fastmath off, so each element is computed exactly as a scalar loop would).
@@ -92,18 +105,126 @@ BLOCK = 256  # samples per block of one point: its scratch stays in the L1/L2 ca
 CHUNK_ROW = CHUNK + 8
 ROW = BLOCK + 8
 # rows of the chunk copy; HALF_H, H2_12 (h/2 and h²/12) belong to segment j → j+1
-T, X, Y, Z, BX, BY, BZ, IG2, AX, AY, AZ, HALF_H, H2_12 = range(13)
-CHUNK_ROWS = 13
+# RT, RX … DZ: each sample's reference time and position, and its displacement from it
+T, X, Y, Z, BX, BY, BZ, IG2, AX, AY, AZ, HALF_H, H2_12, RT, RX, RY, RZ, DX, DY, DZ = range(20)
+CHUNK_ROWS = 20
 # rows of the block scratch. Per sample: bracket terms q, source-time integrands f and
 # their derivatives g, pointwise fields e (E, n×E), distance, observer time, bin index
 # (a float). Per segment: its increment of the primitive times the particle's scale.
-Q, F, G, E, R, T_OBS, BIN, INC = 0, 6, 12, 18, 24, 25, 26, 27
-BLOCK_ROWS = 33
+# Per sample also its reference's observer time and R_i (see `_reference_rows`).
+Q, F, G, E, R, T_OBS, BIN, INC, T_REF, R0 = 0, 6, 12, 18, 24, 25, 26, 27, 33, 34
+BLOCK_ROWS = 35
 INV_C = 1.0 / C
 
 
+# columns of `ends` (M, 2, END_COLUMNS): per particle, its first (0) and last (1) sample:
+# time, position, velocity, 1/γ²; outside [time of 0, time of 1] the motion is ballistic
+END_T, END_X, END_BX, END_IG2 = 0, 1, 4, 7
+END_COLUMNS = 8
+
+
+def no_extensions(offsets):
+    """`ends` of particles without ballistic extensions (every sample on the track)."""
+    ends = np.zeros((offsets.shape[0] - 1, 2, END_COLUMNS))
+    ends[:, 0, END_T] = -np.inf
+    ends[:, 1, END_T] = np.inf
+    ends[:, :, END_IG2] = 1.0
+    return ends
+
+
 @jit
-def _copy_chunk(t, pos, beta, inv_g2, beta_dot, lo, hi, soa):
+def _kappa(nx, ny, nz, bx, by, bz, inv_g2):
+    """κ = 1 − n·β = (1/γ² + |n×β|²)/(1 + n·β), without cancellation."""
+    cx = ny * bz - nz * by
+    cy = nz * bx - nx * bz
+    cz = nx * by - ny * bx
+    return (inv_g2 + cx * cx + cy * cy + cz * cz) / (1.0 + nx * bx + ny * by + nz * bz)
+
+
+@jit
+def _anchor(geometry_p, far, ends, m, e):
+    """(t_e, observer time T_e, a, b) of end e of particle m seen by one point: near field
+    a = R_e κ_e, b = R_e; far field a = κ_e, b = 0 (see the module's docstring)."""
+    t_e = ends[m, e, END_T]
+    if not math.isfinite(t_e):
+        return t_e, t_e, 0.0, 1.0
+    dx = geometry_p[0] - ends[m, e, END_X]
+    dy = geometry_p[1] - ends[m, e, END_X + 1]
+    dz = geometry_p[2] - ends[m, e, END_X + 2]
+    if far:
+        nx = geometry_p[0]
+        ny = geometry_p[1]
+        nz = geometry_p[2]
+        projected = (nx * (ends[m, e, END_X] - geometry_p[4])
+                     + ny * (ends[m, e, END_X + 1] - geometry_p[5])
+                     + nz * (ends[m, e, END_X + 2] - geometry_p[6]))
+        delay = (geometry_p[3] - projected) / C
+        r = 0.0
+    else:
+        r = math.sqrt(dx * dx + dy * dy + dz * dz)
+        nx = dx / r
+        ny = dy / r
+        nz = dz / r
+        delay = r / C
+    kappa = _kappa(nx, ny, nz, ends[m, e, END_BX], ends[m, e, END_BX + 1],
+                   ends[m, e, END_BX + 2], ends[m, e, END_IG2])
+    if far:
+        return t_e, t_e + delay, kappa, 0.0
+    t_e_obs = _light_time(t_e, _two_sum(geometry_p[0], -ends[m, e, END_X]),
+                          _two_sum(geometry_p[1], -ends[m, e, END_X + 1]),
+                          _two_sum(geometry_p[2], -ends[m, e, END_X + 2]), False, 0.0)
+    return t_e, t_e_obs, r * kappa, r
+
+
+@jit
+def _two_sum(a, b):
+    """s + e = a + b exactly, s = fl(a + b) (Knuth's TwoSum)."""
+    s = a + b
+    v = s - a
+    return s, (a - (s - v)) + (b - v)
+
+
+@jit
+def _two_product(a, b):
+    """p + e = a·b exactly, p = fl(a·b) (Dekker's product with Veltkamp's split)."""
+    p = a * b
+    big = 134217729.0 * a  # 2^27 + 1
+    a_hi = big - (big - a)
+    a_lo = a - a_hi
+    big = 134217729.0 * b
+    b_hi = big - (big - b)
+    b_lo = b - b_hi
+    return p, ((a_hi * b_hi - p) + a_hi * b_lo + a_lo * b_hi) + a_lo * b_lo
+
+
+@jit
+def _light_time(t, dx, dy, dz, far, far_delay):
+    """t + R/c (near field: R = |(dx, dy, dz)|, each component a double-double (hi, lo)
+    pair) or t + far_delay/c (far field), correct to about 1e-30 of
+    the terms' size although it may be far smaller than either (the light of a sample
+    microseconds before it arrives)."""
+    if far:
+        r_hi = far_delay
+        r_lo = 0.0
+    else:
+        s_hi = 0.0
+        s_lo = 0.0
+        for hi, lo in (dx, dy, dz):
+            square, error = _two_product(hi, hi)
+            s_hi, sum_error = _two_sum(s_hi, square)
+            s_lo += sum_error + error + 2.0 * hi * lo
+        r_hi = math.sqrt(s_hi)
+        square, error = _two_product(r_hi, r_hi)
+        r_lo = ((s_hi - square) - error + s_lo) / (2.0 * r_hi)
+    q_hi = r_hi / C
+    product, error = _two_product(q_hi, C)
+    q_lo = ((r_hi - product) - error + r_lo) / C
+    total, sum_error = _two_sum(t, q_hi)
+    return total + (sum_error + q_lo)
+
+
+@jit
+def _copy_chunk(t, pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp, lo, hi, soa):
     """Copy samples lo … hi−1 into the rows of soa (and the trapezoid weights of the
     segments between them), so that every point's passes read unit-stride rows."""
     t = t[lo:hi]
@@ -111,7 +232,14 @@ def _copy_chunk(t, pos, beta, inv_g2, beta_dot, lo, hi, soa):
     beta = beta[lo:hi].reshape(-1)
     inv_g2 = inv_g2[lo:hi]
     beta_dot = beta_dot[lo:hi].reshape(-1)
+    ref_t = ref_t[lo:hi]
+    ref_r = ref_r[lo:hi].reshape(-1)
+    disp = disp[lo:hi].reshape(-1)
     for i in range(hi - lo):
+        soa[RT * CHUNK_ROW + i] = ref_t[i]
+        for c in range(3):
+            soa[(RX + c) * CHUNK_ROW + i] = ref_r[3 * i + c]
+            soa[(DX + c) * CHUNK_ROW + i] = disp[3 * i + c]
         soa[T * CHUNK_ROW + i] = t[i]
         soa[X * CHUNK_ROW + i] = pos[3 * i]
         soa[Y * CHUNK_ROW + i] = pos[3 * i + 1]
@@ -130,20 +258,84 @@ def _copy_chunk(t, pos, beta, inv_g2, beta_dot, lo, hi, soa):
 
 
 @jit
-def _near_times(ox, oy, oz, soa, count, edge0, inv_step, n_bins, scratch):
+def _reference(geometry_p, far, soa, i):
+    """(observer time T_i of sample i's reference, R_i; 0 in the far field) for one point
+    (see `_times`)."""
+    t_ref = soa[RT * CHUNK_ROW + i]
+    x0, x0_lo = _two_sum(geometry_p[0], -soa[RX * CHUNK_ROW + i])
+    y0, y0_lo = _two_sum(geometry_p[1], -soa[RY * CHUNK_ROW + i])
+    z0, z0_lo = _two_sum(geometry_p[2], -soa[RZ * CHUNK_ROW + i])
+    if far:
+        projected = (geometry_p[0] * (soa[RX * CHUNK_ROW + i] - geometry_p[4])
+                     + geometry_p[1] * (soa[RY * CHUNK_ROW + i] - geometry_p[5])
+                     + geometry_p[2] * (soa[RZ * CHUNK_ROW + i] - geometry_p[6]))
+        delay = geometry_p[3] - projected
+        return _light_time(t_ref, (x0, 0.0), (y0, 0.0), (z0, 0.0), True, delay), 0.0
+    r0 = math.sqrt(x0 * x0 + y0 * y0 + z0 * z0)
+    return _light_time(t_ref, (x0, x0_lo), (y0, y0_lo), (z0, z0_lo), False, 0.0), r0
+
+
+@jit
+def _reference_rows(geometry_p, far, soa, count, scratch):
+    """Rows T_REF, R0 of the block's samples: `_reference` of each sample's reference,
+    formed once per reference (consecutive samples share it)."""
+    held = math.nan  # the reference time whose values are held
+    t_ref = r0 = 0.0
+    for i in range(count):
+        ref = soa[RT * CHUNK_ROW + i]
+        if ref != held:
+            held = ref
+            t_ref, r0 = _reference(geometry_p, far, soa, i)
+        scratch[T_REF * ROW + i] = t_ref
+        scratch[R0 * ROW + i] = r0
+
+
+@jit
+def _times(geometry_p, far, soa, count, edge0, inv_step, n_bins, scratch, first, last):
     """Rows R, T_OBS, BIN of the first `count` samples of soa (a chunk copy viewed from
-    the block's first sample) seen from (ox, oy, oz). Returns whether any segment of the
-    block can reach the bins: if not, the block needs no further work."""
+    the block's first sample) seen by one point (see `_point`); first, last: the
+    particle's end anchors (see `_anchor`). Returns whether any segment of the block can
+    reach the bins: if not, the block needs no further work."""
+    _reference_rows(geometry_p, far, soa, count, scratch)
     before = 0
     after = 0
     for i in range(count):
-        dx = ox - soa[X * CHUNK_ROW + i]
-        dy = oy - soa[Y * CHUNK_ROW + i]
-        dz = oz - soa[Z * CHUNK_ROW + i]
-        r = math.sqrt(dx * dx + dy * dy + dz * dz)
-        # a true division (not r·(1/c)): edges are placed by differences of these times,
-        # so their rounding shows in the results
-        t_obs = soa[T * CHUNK_ROW + i] + r / C
+        t_src = soa[T * CHUNK_ROW + i]
+        ref = soa[RT * CHUNK_ROW + i]
+        extension = t_src < first[0] or t_src > last[0]
+        t_ref = scratch[T_REF * ROW + i]
+        ddx = soa[DX * CHUNK_ROW + i]
+        ddy = soa[DY * CHUNK_ROW + i]
+        ddz = soa[DZ * CHUNK_ROW + i]
+        anchor = first if t_src < first[0] else last
+        if far:
+            nx = geometry_p[0]
+            ny = geometry_p[1]
+            nz = geometry_p[2]
+            r = geometry_p[3]
+            if extension:
+                t_obs = anchor[1] + (t_src - anchor[0]) * anchor[2]
+            else:
+                t_obs = t_ref + ((t_src - ref) - (nx * ddx + ny * ddy + nz * ddz) / C)
+        else:
+            x0 = geometry_p[0] - soa[RX * CHUNK_ROW + i]  # x − r_i
+            y0 = geometry_p[1] - soa[RY * CHUNK_ROW + i]
+            z0 = geometry_p[2] - soa[RZ * CHUNK_ROW + i]
+            dx = x0 - ddx
+            dy = y0 - ddy
+            dz = z0 - ddz
+            r = math.sqrt(dx * dx + dy * dy + dz * dz)
+            if extension:
+                kappa = _kappa(dx / r, dy / r, dz / r, soa[BX * CHUNK_ROW + i],
+                               soa[BY * CHUNK_ROW + i], soa[BZ * CHUNK_ROW + i],
+                               soa[IG2 * CHUNK_ROW + i])
+                t_obs = anchor[1] + (t_src - anchor[0]) * ((r * kappa + anchor[2])
+                                                           / (r + anchor[3]))
+            else:
+                # (R − R_i)/c = −d·(2(x − r_i) − d)/(c(R + R_i)), by a true division
+                closer = ((ddx * (2.0 * x0 - ddx) + ddy * (2.0 * y0 - ddy)
+                           + ddz * (2.0 * z0 - ddz)) / ((r + scratch[R0 * ROW + i]) * C))
+                t_obs = t_ref + ((t_src - ref) - closer)
         # a time within rounding of an edge may fall on either side: harmless, the split
         # of a segment at an edge is continuous in the edge's position
         k = np.floor((t_obs - edge0) * inv_step)
@@ -156,23 +348,28 @@ def _near_times(ox, oy, oz, soa, count, edge0, inv_step, n_bins, scratch):
 
 
 @jit
-def _near_samples(ox, oy, oz, soa, count, scratch):
-    """Per-sample quantities of the block's samples (after `_near_times`), all per
-    q/(4πε0). One flat loop with non-negative indices only (no gathers) and two divisions
-    (1/R, 1/κ): LLVM vectorises it."""
+def _samples(geometry_p, far, soa, count, scratch):
+    """Per-sample quantities of the block's samples (after `_times`), all per q/(4πε0).
+    One flat loop with non-negative indices only (no gathers) and two divisions (1/R,
+    1/κ): LLVM vectorises it. In the far field n and R₀ are fixed and the terms of the
+    velocity field (near = 0) drop out: the source-time integrals vanish and the bracket
+    is n×(n×β)/(cκR₀)."""
+    near = 0.0 if far else 1.0
     for i in range(count):
-        dx = ox - soa[X * CHUNK_ROW + i]
-        dy = oy - soa[Y * CHUNK_ROW + i]
-        dz = oz - soa[Z * CHUNK_ROW + i]
-        r = scratch[R * ROW + i]
+        if far:
+            nx = geometry_p[0]
+            ny = geometry_p[1]
+            nz = geometry_p[2]
+            inv_r = 1.0 / geometry_p[3]
+        else:
+            inv_r = 1.0 / scratch[R * ROW + i]
+            nx = (geometry_p[0] - soa[X * CHUNK_ROW + i]) * inv_r
+            ny = (geometry_p[1] - soa[Y * CHUNK_ROW + i]) * inv_r
+            nz = (geometry_p[2] - soa[Z * CHUNK_ROW + i]) * inv_r
         bx = soa[BX * CHUNK_ROW + i]
         by = soa[BY * CHUNK_ROW + i]
         bz = soa[BZ * CHUNK_ROW + i]
         inv_g2 = soa[IG2 * CHUNK_ROW + i]
-        inv_r = 1.0 / r
-        nx = dx * inv_r
-        ny = dy * inv_r
-        nz = dz * inv_r
         nb = nx * bx + ny * by + nz * bz
         cx = ny * bz - nz * by  # n × β
         cy = nz * bx - nx * bz
@@ -182,7 +379,7 @@ def _near_samples(ox, oy, oz, soa, count, scratch):
         inv_cr = inv_r * INV_C
         inv_ckr = inv_cr * inv_kappa
         # bracket terms: n/(cR) + n×(n×β)/(cκR) with n×(n×β) = n(n·β) − β; −n×β/(cκR)
-        along = inv_cr + nb * inv_ckr
+        along = near * inv_cr + nb * inv_ckr
         scratch[(Q + 0) * ROW + i] = nx * along - bx * inv_ckr
         scratch[(Q + 1) * ROW + i] = ny * along - by * inv_ckr
         scratch[(Q + 2) * ROW + i] = nz * along - bz * inv_ckr
@@ -190,7 +387,7 @@ def _near_samples(ox, oy, oz, soa, count, scratch):
         scratch[(Q + 3) * ROW + i] = cx * minus_inv_ckr
         scratch[(Q + 4) * ROW + i] = cy * minus_inv_ckr
         scratch[(Q + 5) * ROW + i] = cz * minus_inv_ckr
-        inv_r2 = inv_r * inv_r
+        inv_r2 = near * inv_r * inv_r  # the velocity field's 1/R², 0 in the far field
         minus_inv_r2 = -inv_r2
         scratch[(F + 0) * ROW + i] = nx * inv_r2
         scratch[(F + 1) * ROW + i] = ny * inv_r2
@@ -362,9 +559,11 @@ def _near_deposit(out_p, soa, count, scratch, w, edge0, step, n_bins, dp, ea, eb
 
 
 @jit
-def _near_point(out_p, ox, oy, oz, offsets, scale, m0, lo, hi, soa, edge0, step, n_bins):
-    """All segments of samples lo … hi−1 (the current chunk) seen from one point, particle
-    by particle and in time order, in blocks of BLOCK samples overlapping by one."""
+def _point(out_p, geometry_p, far, offsets, scale, ends, m0, lo, hi, soa, edge0, step,
+           n_bins):
+    """All segments of samples lo … hi−1 (the current chunk) seen by one point, particle
+    by particle and in time order, in blocks of BLOCK samples overlapping by one.
+    geometry_p (7,): the point (near field), or direction n, R₀ and origin (far field)."""
     scratch = np.empty(BLOCK_ROWS * ROW)
     dp = np.empty(6)
     ea = np.empty(6)
@@ -374,11 +573,14 @@ def _near_point(out_p, ox, oy, oz, offsets, scale, m0, lo, hi, soa, edge0, step,
         first = max(offsets[m], lo) - lo
         last = min(offsets[m + 1], hi) - lo
         w = scale[m]
+        anchor_first = _anchor(geometry_p, far, ends, m, 0)
+        anchor_last = _anchor(geometry_p, far, ends, m, 1)
         while last - first >= 2:
             count = min(BLOCK, last - first)
             block = soa[first:]
-            if _near_times(ox, oy, oz, block, count, edge0, 1.0 / step, n_bins, scratch):
-                _near_samples(ox, oy, oz, block, count, scratch)
+            if _times(geometry_p, far, block, count, edge0, 1.0 / step, n_bins, scratch,
+                      anchor_first, anchor_last):
+                _samples(geometry_p, far, block, count, scratch)
                 _near_increments(block, count, w, scratch)
                 _near_deposit(out_p, block, count, scratch, w, edge0, step, n_bins, dp, ea,
                               eb)
@@ -387,14 +589,17 @@ def _near_point(out_p, ox, oy, oz, offsets, scale, m0, lo, hi, soa, edge0, step,
 
 
 @jit(parallel=True)
-def deposit_near(t, pos, beta, inv_g2, beta_dot, offsets, scale, observers, edge0, step,
-                 n_bins, out):
-    """Full (near-field) Liénard–Wiechert bin integrals of many particles.
+def _deposit(t, pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp, offsets, scale, ends,
+             geometry, far, edge0, step, n_bins, out):
+    """Bin integrals of many particles at the points of `geometry` (P, 7).
 
     t (N,) source times, s; pos (N, 3) m; beta (N, 3); inv_g2 (N,) = 1/γ²;
-    beta_dot (N, 3) 1/s: the source samples of all particles back to back, particle m
+    beta_dot (N, 3) 1/s; ref_t (N,) s, ref_r (N, 3) m, disp (N, 3) m: each sample's
+    reference and its displacement from it (see the module's docstring): the source
+    samples of all particles back to back, particle m
     owning rows offsets[m]:offsets[m+1] (time-ordered). scale (M,) multiplies particle m.
-    observers (P, 3) m; edge0 (P,) s; step s; n_bins (P,) int; out (P, max_bins, 6) += .
+    ends (M, 2, END_COLUMNS): where the particles' ballistic extensions start.
+    edge0 (P,) s; step s; n_bins (P,) int; out (P, max_bins, 6) += .
 
     The samples are taken in chunks (overlapping by one sample) copied once into a
     structure of arrays, and the points of each chunk run in parallel. Every point still
@@ -409,79 +614,44 @@ def deposit_near(t, pos, beta, inv_g2, beta_dot, offsets, scale, observers, edge
         hi = min(lo + CHUNK, n_samples)
         while offsets[m0 + 1] <= lo:
             m0 += 1
-        _copy_chunk(t, pos, beta, inv_g2, beta_dot, lo, hi, soa)
-        for p in numba.prange(observers.shape[0]):
-            _near_point(out[p], observers[p, 0], observers[p, 1], observers[p, 2], offsets,
-                        scale, m0, lo, hi, soa, edge0[p], step, n_bins[p])
+        _copy_chunk(t, pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp, lo, hi, soa)
+        for p in numba.prange(geometry.shape[0]):
+            _point(out[p], geometry[p], far, offsets, scale, ends, m0, lo, hi, soa, edge0[p],
+                   step, n_bins[p])
         lo = hi - 1
 
 
-@jit
-def _far_sample(nx, ny, nz, r0, ox, oy, oz, t, pos, beta, inv_g2, beta_dot, j, q, e):
-    """Far-field observer time of sample j; fills q (primitive) and e (pointwise field)."""
-    bx = beta[j, 0]
-    by = beta[j, 1]
-    bz = beta[j, 2]
-    e[0], e[1], e[2], kappa = field_at(nx, ny, nz, bx, by, bz, inv_g2[j], beta_dot[j, 0],
-                                       beta_dot[j, 1], beta_dot[j, 2], 1.0 / r0, False)
-    nb = nx * bx + ny * by + nz * bz
-    inv_ckr = 1.0 / (C * kappa * r0)
-    q[0] = (nx * nb - bx) * inv_ckr
-    q[1] = (ny * nb - by) * inv_ckr
-    q[2] = (nz * nb - bz) * inv_ckr
-    # n × (E or primitive): the B parts, per q/(4πε0 c)
-    q[3] = ny * q[2] - nz * q[1]
-    q[4] = nz * q[0] - nx * q[2]
-    q[5] = nx * q[1] - ny * q[0]
-    e[3] = ny * e[2] - nz * e[1]
-    e[4] = nz * e[0] - nx * e[2]
-    e[5] = nx * e[1] - ny * e[0]
-    projected = nx * (pos[j, 0] - ox) + ny * (pos[j, 1] - oy) + nz * (pos[j, 2] - oz)
-    return t[j] + (r0 - projected) / C
+def _references(t, pos, offsets, reference):
+    """(ref_t, ref_r, disp) given, or the first sample of each particle for all its
+    samples (observer times then keep no more digits than t′ + R/c would)."""
+    if reference is not None:
+        return reference
+    first = np.repeat(offsets[:-1], np.diff(offsets))
+    ref_r = pos[first]
+    return t[first], ref_r, pos - ref_r
 
 
-@jit(parallel=True)
+def deposit_near(t, pos, beta, inv_g2, beta_dot, offsets, scale, observers, edge0, step,
+                 n_bins, out, ends=None, reference=None):
+    """Full (near-field) Liénard–Wiechert bin integrals of many particles at observers
+    (P, 3) m; ends: where the particles' ballistic extensions start (default: none);
+    reference: (ref_t, ref_r, disp) of the samples (default: see `_references`). Other
+    arguments as for `_deposit`."""
+    if ends is None:
+        ends = no_extensions(offsets)
+    geometry = np.zeros((observers.shape[0], 7))
+    geometry[:, :3] = observers
+    _deposit(t, pos, beta, inv_g2, beta_dot, *_references(t, pos, offsets, reference), offsets,
+             scale, ends, geometry, False, edge0, step, n_bins, out)
+
+
 def deposit_far(t, pos, beta, inv_g2, beta_dot, offsets, scale, directions, distance,
-                origins, edge0, step, n_bins, out):
-    """Far-field (radiation term, fixed n and R₀) bin integrals of many particles.
-
+                origins, edge0, step, n_bins, out, ends=None, reference=None):
+    """Far-field (radiation term, fixed n and R₀) bin integrals of many particles:
     directions (P, 3) unit vectors n from origins (P, 3) to the points; distance (P,) R₀ m.
-    Other arguments as for `deposit_near`.
-    """
-    n_points = directions.shape[0]
-    n_particles = offsets.shape[0] - 1
-    for p in numba.prange(n_points):
-        nx = directions[p, 0]
-        ny = directions[p, 1]
-        nz = directions[p, 2]
-        r0 = distance[p]
-        ox = origins[p, 0]
-        oy = origins[p, 1]
-        oz = origins[p, 2]
-        out_p = out[p]
-        qa = np.empty(6)
-        qb = np.empty(6)
-        ea = np.empty(6)
-        eb = np.empty(6)
-        dp = np.empty(6)
-        for m in range(n_particles):
-            first = offsets[m]
-            last = offsets[m + 1]
-            if last - first < 2:
-                continue
-            w = scale[m]
-            ta = _far_sample(nx, ny, nz, r0, ox, oy, oz, t, pos, beta, inv_g2, beta_dot,
-                             first, qa, ea)
-            for j in range(first + 1, last):
-                tb = _far_sample(nx, ny, nz, r0, ox, oy, oz, t, pos, beta, inv_g2,
-                                 beta_dot, j, qb, eb)
-                for c in range(6):
-                    dp[c] = qb[c] - qa[c]
-                ka = math.floor((ta - edge0[p]) / step)
-                kb = math.floor((tb - edge0[p]) / step)
-                _deposit_segment(out_p, ta, tb, ka, kb, dp, ea, eb, w, edge0[p], step,
-                                 n_bins[p])
-                for c in range(6):
-                    qa[c] = qb[c]
-                    ea[c] = eb[c]
-                ta = tb
+    Other arguments as for `deposit_near`."""
+    if ends is None:
+        ends = no_extensions(offsets)
+    geometry = np.concatenate([directions, np.reshape(distance, (-1, 1)), origins], axis=1)
+    _deposit(t, pos, beta, inv_g2, beta_dot, *_references(t, pos, offsets, reference), offsets,
+             scale, ends, geometry, True, edge0, step, n_bins, out)

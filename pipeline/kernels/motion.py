@@ -59,26 +59,35 @@ def ballistic(t, breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2, b
 
 @jit
 def evaluate_positions(t, breaks, coef, ends_r, ends_beta, ends_inv_g2, pos, beta, inv_g2,
-                       beta_dot):
+                       beta_dot, ref, disp):
     """Positions-only motion at times t (K,): pos (K, 3) m, beta (K, 3), inv_g2 (K,) =
-    (1 − |β|)(1 + |β|), beta_dot (K, 3) 1/s. coef (P, k+1, 3), breaks (P+1,)."""
+    (1 − |β|)(1 + |β|), beta_dot (K, 3) 1/s; ref (K,) the piece p whose start (time
+    breaks[p], position coef[p, 0]) is the sample's reference, and disp (K, 3) m the
+    displacement from it, formed without adding the reference position (−1 and 0 on the
+    ballistic extensions). coef (P, k+1, 3), breaks (P+1,)."""
     n_coef = coef.shape[1]
     for j in range(t.shape[0]):
         if ballistic(t[j], breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2,
                      beta_dot):
+            ref[j] = -1
+            disp[j, :] = 0.0
             continue
         p = find_piece(breaks, t[j])
+        ref[j] = p
         s = t[j] - breaks[p]
         speed2 = 0.0
         for c in range(3):
             r = 0.0
             v = 0.0
             a = 0.0
-            for m in range(n_coef - 1, -1, -1):  # Horner for r, r′, r″ together
+            for m in range(n_coef - 1, 0, -1):  # Horner for r − r_p, r′, r″ together
                 a = a * s + 2.0 * v
                 v = v * s + r
                 r = r * s + coef[p, m, c]
-            pos[j, c] = r
+            a = a * s + 2.0 * v
+            v = v * s + r
+            disp[j, c] = r * s
+            pos[j, c] = r * s + coef[p, 0, c]
             beta[j, c] = v / C
             beta_dot[j, c] = a / C
             speed2 += beta[j, c] * beta[j, c]
@@ -98,8 +107,9 @@ def chebyshev(coef, p, c, x):
 
 @jit
 def evaluate_momenta(t, breaks, interval_of, knots, knot_r, slip_s, u_coef, path_cheb,
-                     ends_r, ends_beta, ends_inv_g2, pos, beta, inv_g2, beta_dot):
-    """Motion with momenta at times t (K,); outputs as `evaluate_positions`.
+                     ends_r, ends_beta, ends_inv_g2, pos, beta, inv_g2, beta_dot, ref, disp):
+    """Motion with momenta at times t (K,); outputs as `evaluate_positions`, the reference
+    of a sample being the start of its position interval (time knots[i], knot_r[i]).
 
     breaks (P+1,) pieces; interval_of (P,) position interval of each piece; knots (n,)
     sample times t_i; knot_r (n, 3) m; slip_s (n−1, 3) D_i; u_coef (P, k+1, 3);
@@ -110,9 +120,12 @@ def evaluate_momenta(t, breaks, interval_of, knots, knot_r, slip_s, u_coef, path
     for j in range(t.shape[0]):
         if ballistic(t[j], breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2,
                      beta_dot):
+            ref[j] = -1
+            disp[j, :] = 0.0
             continue
         p = find_piece(breaks, t[j])
         i = interval_of[p]
+        ref[j] = i
         s = t[j] - breaks[p]
         x = 2.0 * s / (breaks[p + 1] - breaks[p]) - 1.0
         h = knots[i + 1] - knots[i]
@@ -128,7 +141,8 @@ def evaluate_momenta(t, breaks, interval_of, knots, knot_r, slip_s, u_coef, path
                 value = value * s + u_coef[p, m, c]
             u[c] = value
             du[c] = slope
-            pos[j, c] = knot_r[i, c] + chebyshev(path_cheb, p, c, x) + C * slip_s[i, c] * bump_area
+            disp[j, c] = chebyshev(path_cheb, p, c, x) + C * slip_s[i, c] * bump_area
+            pos[j, c] = knot_r[i, c] + disp[j, c]
         u2 = u[0] * u[0] + u[1] * u[1] + u[2] * u[2]
         gamma = math.sqrt(1.0 + u2)
         u_du = (u[0] * du[0] + u[1] * du[1] + u[2] * du[2]) / (gamma * gamma)

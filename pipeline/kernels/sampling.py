@@ -1,12 +1,21 @@
-"""How far apart source samples may lie, so that the bin integrals stay accurate.
+"""How far apart source samples may lie, so that the bin integrals stay accurate, and how
+close a track comes to the points that see it.
 
 At a source sample the allowed source-time step is the smallest, over the observer
 points, of
   - step_s / (per_bin · κ): at least `per_bin` samples per observer bin (dt = κ dt′);
-  - tolerance · R / c (near field): n turns and R changes by at most `tolerance` of itself;
+  - tolerance · R / c (near field), where the point sees the sample's neighbourhood within
+    its time window: n turns and R changes by at most `tolerance` of itself;
   - tolerance · √(2κ) / |β̇|: the angle between n and β changes by at most `tolerance`
     of √(2κ) ≥ that angle, so a dip of κ (a beam pointing at the observer) cannot be
     stepped over and κ changes by at most about 2·tolerance per sample.
+A point's window [seen_lo[p], seen_hi[p]] (source times) missing the interval between a
+sample's neighbours [t_before[j], t_after[j]] lifts the R/c limit there: a point the track
+passes through before or after the light it sees left asks for no steps shrinking to 0.
+
+Each kernel has a serial and a parallel driver sharing one per-item function: per-particle
+calls on small arrays run serially (a parallel region's fork and join cost more than the
+work). Items are independent, so results do not depend on the driver or thread count.
 """
 
 from __future__ import annotations
@@ -18,72 +27,132 @@ import numba
 from ._jit import jit
 
 C = 299792458.0
+PARALLEL_MIN_WORK = 200_000  # samples × points below which the serial drivers run
+
+
+@jit
+def _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
+                seen_hi, far_field, step, per_bin, tolerance):
+    """Allowed source-time step (s) at sample j: the minimum over the points seeing it."""
+    bx = beta[j, 0]
+    by = beta[j, 1]
+    bz = beta[j, 2]
+    accel = math.sqrt(beta_dot[j, 0] ** 2 + beta_dot[j, 1] ** 2 + beta_dot[j, 2] ** 2)
+    limit = math.inf
+    for p in range(observers.shape[0]):
+        if far_field:
+            nx = observers[p, 0]
+            ny = observers[p, 1]
+            nz = observers[p, 2]
+            r = math.inf
+        else:
+            dx = observers[p, 0] - pos[j, 0]
+            dy = observers[p, 1] - pos[j, 1]
+            dz = observers[p, 2] - pos[j, 2]
+            r = math.sqrt(dx * dx + dy * dy + dz * dz)
+            nx = dx / r
+            ny = dy / r
+            nz = dz / r
+        nb = nx * bx + ny * by + nz * bz
+        cx = ny * bz - nz * by
+        cy = nz * bx - nx * bz
+        cz = nx * by - ny * bx
+        kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
+        limit = min(limit, step / (per_bin * kappa))
+        if t_after[j] >= seen_lo[p] and t_before[j] <= seen_hi[p]:
+            limit = min(limit, tolerance * r / C)
+        if accel > 0.0:
+            limit = min(limit, tolerance * math.sqrt(2.0 * kappa) / accel)
+    return limit
+
+
+@jit
+def _limits_serial(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
+                   seen_hi, far_field, step, per_bin, tolerance, out):
+    for j in range(pos.shape[0]):
+        out[j] = _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers,
+                             seen_lo, seen_hi, far_field, step, per_bin, tolerance)
 
 
 @jit(parallel=True)
-def source_step_limits(pos, beta, inv_g2, beta_dot, observers, far_field, step, per_bin,
-                       tolerance, out):
-    """out[j] = allowed source-time step (s) at sample j, the minimum over the points.
+def _limits_parallel(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
+                     seen_hi, far_field, step, per_bin, tolerance, out):
+    for j in numba.prange(pos.shape[0]):
+        out[j] = _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers,
+                             seen_lo, seen_hi, far_field, step, per_bin, tolerance)
 
-    pos (N, 3) m; beta (N, 3); inv_g2 (N,); beta_dot (N, 3) 1/s; observers (P, 3): points
-    in m, or unit directions when far_field is True; step s; out (N,).
+
+def source_step_limits(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
+                       seen_hi, far_field, step, per_bin, tolerance, out):
+    """out[j] = allowed source-time step (s) at sample j, the minimum over the points that
+    see it.
+
+    pos (N, 3) m; beta (N, 3); inv_g2 (N,); beta_dot (N, 3) 1/s; t_before, t_after (N,) s:
+    the source times of sample j's neighbours (or its own at an end); observers (P, 3):
+    points in m, or unit directions when far_field is True; seen_lo, seen_hi (P,) s: the
+    source times whose light reaches point p within its window; step s; out (N,).
     """
-    n_samples = pos.shape[0]
-    n_points = observers.shape[0]
-    for j in numba.prange(n_samples):
-        bx = beta[j, 0]
-        by = beta[j, 1]
-        bz = beta[j, 2]
-        accel = math.sqrt(beta_dot[j, 0] ** 2 + beta_dot[j, 1] ** 2 + beta_dot[j, 2] ** 2)
-        limit = math.inf
-        for p in range(n_points):
-            if far_field:
-                nx = observers[p, 0]
-                ny = observers[p, 1]
-                nz = observers[p, 2]
-                r = math.inf
-            else:
-                dx = observers[p, 0] - pos[j, 0]
-                dy = observers[p, 1] - pos[j, 1]
-                dz = observers[p, 2] - pos[j, 2]
-                r = math.sqrt(dx * dx + dy * dy + dz * dz)
-                nx = dx / r
-                ny = dy / r
-                nz = dz / r
-            nb = nx * bx + ny * by + nz * bz
-            cx = ny * bz - nz * by
-            cy = nz * bx - nx * bz
-            cz = nx * by - ny * bx
-            kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
-            limit = min(limit, step / (per_bin * kappa), tolerance * r / C)
-            if accel > 0.0:
-                limit = min(limit, tolerance * math.sqrt(2.0 * kappa) / accel)
-        out[j] = limit
+    driver = (_limits_parallel if pos.shape[0] * observers.shape[0] >= PARALLEL_MIN_WORK
+              else _limits_serial)
+    driver(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo, seen_hi,
+           far_field, step, per_bin, tolerance, out)
+
+
+@jit
+def _closest(p, t, pos, observers, seen_lo, seen_hi):
+    """Smallest distance (m) from point p to the polyline through (t (N,), pos (N, 3)),
+    cut to the source times [seen_lo[p], seen_hi[p]] (positions interpolated linearly)."""
+    best = math.inf
+    ox = observers[p, 0]
+    oy = observers[p, 1]
+    oz = observers[p, 2]
+    lo = seen_lo[p]
+    hi = seen_hi[p]
+    for j in range(t.shape[0] - 1):
+        ta = t[j]
+        tb = t[j + 1]
+        if tb < lo or ta > hi:
+            continue
+        sx = pos[j + 1, 0] - pos[j, 0]
+        sy = pos[j + 1, 1] - pos[j, 1]
+        sz = pos[j + 1, 2] - pos[j, 2]
+        # the part of the segment inside the window, as fractions u0 ≤ u ≤ u1 of it
+        u0 = 0.0
+        u1 = 1.0
+        if tb > ta:
+            u0 = max(0.0, (lo - ta) / (tb - ta))
+            u1 = min(1.0, (hi - ta) / (tb - ta))
+        ax = pos[j, 0]
+        ay = pos[j, 1]
+        az = pos[j, 2]
+        length2 = sx * sx + sy * sy + sz * sz
+        u = u0
+        if length2 > 0.0:
+            u = ((ox - ax) * sx + (oy - ay) * sy + (oz - az) * sz) / length2
+            u = min(u1, max(u0, u))
+        dx = ox - (ax + u * sx)
+        dy = oy - (ay + u * sy)
+        dz = oz - (az + u * sz)
+        best = min(best, math.sqrt(dx * dx + dy * dy + dz * dz))
+    return best
+
+
+@jit
+def _closest_serial(t, pos, observers, seen_lo, seen_hi, out):
+    for p in range(observers.shape[0]):
+        out[p] = _closest(p, t, pos, observers, seen_lo, seen_hi)
 
 
 @jit(parallel=True)
-def closest_approach(pos, observers, out):
-    """out[p] = smallest distance (m) from point p to the polyline through pos (N, 3)."""
-    n_samples = pos.shape[0]
+def _closest_parallel(t, pos, observers, seen_lo, seen_hi, out):
     for p in numba.prange(observers.shape[0]):
-        best = math.inf
-        ox = observers[p, 0]
-        oy = observers[p, 1]
-        oz = observers[p, 2]
-        for j in range(n_samples - 1):
-            ax = pos[j, 0]
-            ay = pos[j, 1]
-            az = pos[j, 2]
-            sx = pos[j + 1, 0] - ax
-            sy = pos[j + 1, 1] - ay
-            sz = pos[j + 1, 2] - az
-            length2 = sx * sx + sy * sy + sz * sz
-            u = 0.0
-            if length2 > 0.0:
-                u = ((ox - ax) * sx + (oy - ay) * sy + (oz - az) * sz) / length2
-                u = min(1.0, max(0.0, u))
-            dx = ox - (ax + u * sx)
-            dy = oy - (ay + u * sy)
-            dz = oz - (az + u * sz)
-            best = min(best, math.sqrt(dx * dx + dy * dy + dz * dz))
-        out[p] = best
+        out[p] = _closest(p, t, pos, observers, seen_lo, seen_hi)
+
+
+def closest_approach(t, pos, observers, seen_lo, seen_hi, out):
+    """out[p] = smallest distance (m) from point p to the polyline through the source
+    samples (t (N,) s, pos (N, 3) m) whose source times lie in [seen_lo[p], seen_hi[p]]:
+    the part of the track whose light point p sees in its window (inf if none)."""
+    driver = (_closest_parallel if pos.shape[0] * observers.shape[0] >= PARALLEL_MIN_WORK
+              else _closest_serial)
+    driver(t, pos, observers, seen_lo, seen_hi, out)

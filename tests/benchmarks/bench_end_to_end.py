@@ -47,8 +47,8 @@ import lagfield  # noqa: E402
 # Sizes per mode: (builder keyword arguments) for each case; c and d are series in N.
 SIZES = {
     "quick": {
-        "a": dict(n_particles=1, n_samples=500, screen_shape=(4, 4), step_s=24e-15),
-        "a+": dict(n_particles=1, n_samples=500, screen_shape=(4, 4), step_s=24e-15,
+        "a": dict(n_particles=1, n_samples=500, screen_shape=(4, 4), step_s=12e-15),
+        "a+": dict(n_particles=1, n_samples=500, screen_shape=(4, 4), step_s=12e-15,
                    n_frequencies=10),
         "b": dict(n_particles=4, n_samples=400, n_frequencies=40, sphere=(3, 4)),
         "c": [dict(n_particles=20)],
@@ -106,7 +106,7 @@ def run_numpy(scenario, tracks_path: Path, groups=None, refined: bool = False):
         samples = 2 * int(tracks.groupby("particle").size().max()) if refined else None
         result = ref.far_spectra(scenario, tracks, groups, samples_per_track=samples)
     else:
-        result = ref.near_fields(scenario, tracks, groups, per_half=4 if refined else 2,
+        result = ref.near_fields(scenario, tracks, groups, per_half=6 if refined else 3,
                                  seed_per_interval=16 if refined else 8)
     return time.perf_counter() - start, result
 
@@ -173,10 +173,14 @@ def agreement(signals, scenario, reference) -> str:
 
 
 def self_error(scenario, tracks_path, reference) -> str:
-    """The reference against itself at twice its sampling, on a few points of each group."""
+    """The reference against itself at twice its sampling, on the three points of each
+    group where its result is largest."""
     parts = []
     for group in scenario.groups:
-        keep = np.linspace(0, len(group.points_m) - 1, min(3, len(group.points_m))).astype(int)
+        values = reference[group.name]
+        values = values if scenario.far_field else values[0]
+        size = np.linalg.norm(np.abs(values).reshape(len(group.points_m), -1), axis=1)
+        keep = np.sort(np.argsort(size)[-3:])
         subset = ref.Group(group.spec, group.points_m[keep], group.origin_m)
         _, fine = run_numpy(scenario, tracks_path, [subset], refined=True)
         coarse = reference[group.name]
@@ -229,7 +233,10 @@ def run_case(key, sizes, options, workdir: Path) -> list:
                 row["lagfield_s"] = seconds
                 lag_per_particle = seconds / n
         projected = None if numpy_per_particle is None else numpy_per_particle * n
-        if projected is not None and projected > options.max_seconds:
+        if "lagfield_s" not in row and "failed" not in row["lagfield"]:
+            row["numpy"] = "skipped with lagfield" + (
+                "" if projected is None else f" (projected {projected:.0f} s)")
+        elif projected is not None and projected > options.max_seconds:
             row["numpy"] = f"skipped (projected {projected:.0f} s)"
         else:
             row["numpy_s"], reference = run_numpy(scenario, path)
@@ -270,7 +277,8 @@ def summary(rows) -> None:
         print(f"  {row['case']:<4} {row['n']:>9} "
               + (f"{lag:11.2f}" if lag is not None else f"{'-':>11}")
               + (f" {num:9.2f}" if num is not None else f" {'-':>9}")
-              + f" {ratio}  {row.get('agreement', row.get('lagfield', ''))}")
+              + f" {ratio}  {row.get('agreement', row.get('lagfield', ''))}"
+              + (f"  [numpy vs itself: {row['self']}]" if "self" in row else ""))
     for key in ("c", "d"):
         series = [r for r in rows if r["case"] == key]
         for name, column in (("lagfield", "lagfield_s"), ("numpy", "numpy_s")):
@@ -291,7 +299,8 @@ def main() -> None:
     parser.add_argument("--cases", default="a,a+,b,c,d",
                         help="comma-separated cases among a, a+ (a with spectra), b, c, d")
     parser.add_argument("--profile", action="store_true",
-                        help="print lagfield's cProfile top entries (first size of each case)")
+                        help="print lagfield's cProfile top entries (first size of each case; "
+                        "that timed run then includes cProfile's overhead)")
     parser.add_argument("--max-seconds", type=float, default=1800.0,
                         help="skip a size whose time, projected from the previous size, "
                         "exceeds this (default 1800)")

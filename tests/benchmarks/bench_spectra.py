@@ -1,59 +1,114 @@
-"""Time per observer point of a spectrum on a long logarithmic frequency list.
+"""Cost of the spectrum routes, and the constants of lagfield.transforms.COST fitted to it.
 
-Workload: 1e5 source samples of a field (an undulator-like chirped pulse with nonuniform
-observer-time spacing), 1,000 frequencies log-spaced over 4 decades; the type-3 NUFFT path
-of lagfield.spectra.window_spectrum against a direct sum on a subset of frequencies (for
-the error). One core. Run: python tests/benchmarks/bench_spectra.py
+(1) One point: 1e5 source samples of a field (an undulator-like chirped pulse with
+    nonuniform observer-time spacing), 1,000 frequencies log-spaced over 4 decades; the
+    route the chooser takes, the NUFFT and the direct sum (on a subset of frequencies,
+    extrapolated), and their largest difference relative to the peak.
+(2) --fit: both routes timed over a design of sample counts N, frequency counts F and
+    NUFFT fine-grid sizes G (time span × frequency span); the direct sum fitted as
+    a·N·F, the NUFFT as b + c·N·log2(N) + d·F + e·G·log2(G) (non-negative least squares on relative
+    errors). The printed constants are those to keep in lagfield/transforms.py (COST),
+    followed by the worst relative misprediction of the fit.
+Run: python tests/benchmarks/bench_spectra.py [--fit] (numba on all cores; finufft one
+thread, as in a run).
 """
 
 from __future__ import annotations
 
 import argparse
+import itertools
+import sys
 import time
+from pathlib import Path
 
 import numpy as np
+from scipy import optimize
 
-from lagfield import spectra
+from lagfield import spectra, transforms
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+from analytic_fields import chirped_pulse  # noqa: E402
 
 
-def workload(n_samples: int):
-    rng = np.random.default_rng(5)
-    spacing = 1e-16 * (1.0 + 0.5 * rng.random(n_samples))
-    t = np.cumsum(spacing)
-    centre = t[n_samples // 2]
-    envelope = np.exp(-(((t - centre) / (0.2 * t[-1])) ** 2))
-    phase = 2 * np.pi * 2e14 * (t - centre) * (1.0 + 0.1 * (t - centre) / t[-1])
-    e = np.stack([envelope * np.cos(phase), 0.3 * envelope * np.sin(phase),
-                  0.01 * envelope], axis=1)
-    return t, e
+def best_of(repeats: int, function, *args) -> float:
+    function(*args)  # warm up (compilation, plans)
+    best = np.inf
+    for _ in range(repeats):
+        start = time.perf_counter()
+        function(*args)
+        best = min(best, time.perf_counter() - start)
+    return best
+
+
+def one_point(options) -> None:
+    t, e = chirped_pulse(options.samples, seed=5)
+    f = np.geomspace(1e12, 1e16, options.frequencies)
+    route = transforms.choose(t.size, f, t[-1] - t[0])
+    fast = spectra.window_spectrum(t, e, t[0], t[-1], f, route="nufft")
+    nufft_s = best_of(options.repeats, spectra.window_spectrum, t, e, t[0], t[-1], f, "none",
+                      "nufft")
+    subset = slice(None, None, max(1, options.frequencies // 50))
+    start = time.perf_counter()
+    direct = spectra.window_spectrum(t, e, t[0], t[-1], f[subset], route="direct")
+    direct_s = (time.perf_counter() - start) * options.frequencies / f[subset].size
+    error = np.max(np.abs(fast[subset] - direct)) / np.max(np.abs(direct))
+    print(f"{options.samples:.0e} samples, {options.frequencies} log-spaced frequencies "
+          f"(4 decades), one point: chooser takes '{route}'")
+    print(f"  NUFFT: {nufft_s * 1e3:.1f} ms per point (target: at most 50 ms); direct sum: "
+          f"{direct_s:.2f} s per point (extrapolated); max difference {error:.1e} of peak")
+
+
+def fit(options) -> None:
+    rng = np.random.default_rng(7)
+    span_s = 1e-9
+    direct_rows, nufft_rows = [], []
+    for n, n_f in itertools.product((2_000, 20_000, 100_000), (4, 16, 64)):
+        t = rng.random(n) * span_s
+        values = rng.standard_normal((n, transforms.N_VECTORS))
+        f = np.geomspace(1e9, 1e12, n_f)
+        seconds = best_of(options.repeats, transforms.fourier_sums, t, values, f, "direct")
+        direct_rows.append((n, n_f, seconds))
+    for n, n_f, grid in itertools.product((1_000, 30_000, 300_000), (10, 300, 3_000),
+                                          (1e3, 3e4, 5e5)):
+        t = rng.random(n) * span_s
+        values = rng.standard_normal((n, transforms.N_VECTORS))
+        top = grid / (transforms.NUFFT_UPSAMPLING * span_s)
+        f = np.geomspace(top * 1e-3, top, n_f)
+        seconds = best_of(options.repeats, transforms.fourier_sums, t, values, f, "nufft")
+        nufft_rows.append((n, n_f, transforms.nufft_grid_points(span_s, f.min(), f.max()),
+                           seconds))
+    d = np.array(direct_rows)
+    per_term = np.sum(d[:, 2] * d[:, 0] * d[:, 1]) / np.sum((d[:, 0] * d[:, 1]) ** 2)
+    u = np.array(nufft_rows)
+    grid_log = u[:, 2] * np.log2(u[:, 2])
+    n_log = u[:, 0] * np.log2(u[:, 0])
+    design = np.column_stack([np.ones(len(u)), n_log, u[:, 1], grid_log]) / u[:, 3:4]
+    coefficients, _ = optimize.nnls(design, np.ones(len(u)))
+    model = transforms.CostModel(per_term, *coefficients)
+    worst_direct = np.max(np.abs(model.direct_per_term_s * d[:, 0] * d[:, 1] / d[:, 2] - 1))
+    worst_nufft = np.max(np.abs(design @ coefficients - 1))
+    print("COST = CostModel(" + ", ".join(
+        f"{field.name}={getattr(model, field.name):.3g}"
+        for field in transforms.dataclasses.fields(model)) + ")")
+    print(f"  worst misprediction: direct {worst_direct:.0%}, NUFFT {worst_nufft:.0%} "
+          f"({len(d)} and {len(u)} timings)")
+    for n, n_f, grid, seconds in nufft_rows:
+        predicted = coefficients @ np.array([1.0, n * np.log2(n), n_f, grid * np.log2(grid)])
+        print(f"  NUFFT N={n:.0e} F={n_f:5.0f} G={grid:.0e}: {seconds * 1e3:8.2f} ms "
+              f"(model {predicted * 1e3:8.2f} ms)")
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--samples", type=int, default=100_000)
     parser.add_argument("--frequencies", type=int, default=1_000)
-    parser.add_argument("--repeats", type=int, default=5)
+    parser.add_argument("--repeats", type=int, default=3)
+    parser.add_argument("--fit", action="store_true", help="time both routes and fit COST")
     options = parser.parse_args()
-    t, e = workload(options.samples)
-    f = np.geomspace(1e12, 1e16, options.frequencies)
-    spectra.window_spectrum(t, e, t[0], t[-1], f)  # warm up (imports, plans)
-    best = np.inf
-    for _ in range(options.repeats):
-        start = time.perf_counter()
-        fast = spectra.window_spectrum(t, e, t[0], t[-1], f)
-        best = min(best, time.perf_counter() - start)
-    subset = slice(None, None, max(1, options.frequencies // 50))
-    limit = spectra.DIRECT_SUM_LIMIT
-    spectra.DIRECT_SUM_LIMIT = np.inf
-    start = time.perf_counter()
-    direct = spectra.window_spectrum(t, e, t[0], t[-1], f[subset])
-    direct_s = (time.perf_counter() - start) * options.frequencies / f[subset].size
-    spectra.DIRECT_SUM_LIMIT = limit
-    error = np.max(np.abs(fast[subset] - direct)) / np.max(np.abs(direct))
-    print(f"{options.samples:.0e} samples, {options.frequencies} log-spaced frequencies "
-          f"(4 decades), one point:")
-    print(f"  NUFFT: {best * 1e3:.1f} ms per point (target: at most 50 ms); direct sum: "
-          f"{direct_s:.2f} s per point (extrapolated); max difference {error:.1e} of peak")
+    if options.fit:
+        fit(options)
+    else:
+        one_point(options)
 
 
 if __name__ == "__main__":

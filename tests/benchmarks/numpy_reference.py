@@ -7,8 +7,9 @@ The NumPy side is what a physicist would write in an afternoon, correct rather t
 - near field: for each observer point and particle, the retarded time of every quadrature
   node in observer time (seeded by np.interp of t(t′) on a fine source grid, finished by
   Newton steps on t′ + R(t′)/c = t; closed form on the straight extensions), the full
-  Liénard–Wiechert E and B there (Jackson, Classical Electrodynamics, 3rd ed., eqs. 14.13
-  and 14.14, in SI), bin averages by Gauss–Legendre quadrature over each half bin, and
+  Liénard–Wiechert E and B there (the formula of the product contract; Jackson, Classical
+  Electrodynamics, 3rd ed., eqs. 14.13–14.14, in SI, equation numbers from memory), bin
+  averages by Gauss–Legendre quadrature over each half bin, and
   spectra as the Fourier sum of the same pointwise field over [start, stop];
 - far field: the radiation integral (Jackson, 3rd ed., eq. 14.67, in SI and with the
   transform Ẽ(f) = ∫E e^(−2πift) dt):
@@ -424,7 +425,7 @@ def half_bin_nodes(step_s: float, per_half: int):
     return np.concatenate([-quarter + quarter * x, quarter + quarter * x]), np.tile(quarter * w, 2)
 
 
-def near_fields(scenario: Scenario, tracks: pd.DataFrame, groups=None, per_half=2,
+def near_fields(scenario: Scenario, tracks: pd.DataFrame, groups=None, per_half=3,
                 seed_per_interval=8):
     """{group: (E (P, n_bins, 3), B (P, n_bins, 3), Ẽ (P, F, 3) or None)}: bin averages of
     the summed fields, and the Fourier sum of the pointwise field over [start, stop]."""
@@ -432,6 +433,7 @@ def near_fields(scenario: Scenario, tracks: pd.DataFrame, groups=None, per_half=
     offsets, weights = half_bin_nodes(scenario.step_s, per_half)
     centres = scenario.start_s + scenario.step_s * np.arange(scenario.n_bins)
     t_nodes = (centres[:, None] + offsets).ravel()
+    bin_weights = np.tile(weights, scenario.n_bins)[:, None] / scenario.step_s
     spectral = scenario.frequencies_hz is not None
     if spectral:
         omega = 2.0 * np.pi * scenario.frequencies_hz
@@ -455,9 +457,8 @@ def near_fields(scenario: Scenario, tracks: pd.DataFrame, groups=None, per_half=
                 e, b = lienard_wiechert(point, *motion.state(t_ret), scenario.charge_c * weight)
                 e_sum += e
                 b_sum += b
-            node_weights = np.tile(weights, scenario.n_bins)[:, None] / scenario.step_s
-            e_bins[p] = (e_sum * node_weights).reshape(scenario.n_bins, -1, 3).sum(axis=1)
-            b_bins[p] = (b_sum * node_weights).reshape(scenario.n_bins, -1, 3).sum(axis=1)
+            e_bins[p] = (e_sum * bin_weights).reshape(scenario.n_bins, -1, 3).sum(axis=1)
+            b_bins[p] = (b_sum * bin_weights).reshape(scenario.n_bins, -1, 3).sum(axis=1)
             if spectral:
                 weighted = e_sum.reshape(scenario.n_bins, -1, 3) * w_nodes[..., None]
                 for m in range(offsets.size):
