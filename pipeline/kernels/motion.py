@@ -39,9 +39,10 @@ def find_piece(breaks, t):
 
 
 @jit
-def ballistic(t, breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2, beta_dot):
-    """Write the ballistic extension at time t into row j of the outputs; True if t lies
-    outside the pieces (and the row was written)."""
+def ballistic(t, breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2, beta_dot, ref,
+              disp):
+    """Write the ballistic extension at time t into row j of the outputs (reference −1,
+    displacement 0); True if t lies outside the pieces (and the row was written)."""
     if t < breaks[0]:
         end = 0
     elif t > breaks[breaks.shape[0] - 1]:
@@ -53,7 +54,9 @@ def ballistic(t, breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2, b
         pos[j, c] = ends_r[end, c] + C * ends_beta[end, c] * dt
         beta[j, c] = ends_beta[end, c]
         beta_dot[j, c] = 0.0
+        disp[j, c] = 0.0
     inv_g2[j] = ends_inv_g2[end]
+    ref[j] = -1
     return True
 
 
@@ -68,9 +71,7 @@ def evaluate_positions(t, breaks, coef, ends_r, ends_beta, ends_inv_g2, pos, bet
     n_coef = coef.shape[1]
     for j in range(t.shape[0]):
         if ballistic(t[j], breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2,
-                     beta_dot):
-            ref[j] = -1
-            disp[j, :] = 0.0
+                     beta_dot, ref, disp):
             continue
         p = find_piece(breaks, t[j])
         ref[j] = p
@@ -119,9 +120,7 @@ def evaluate_momenta(t, breaks, interval_of, knots, knot_r, slip_s, u_coef, path
     du = np.empty(3)
     for j in range(t.shape[0]):
         if ballistic(t[j], breaks, ends_r, ends_beta, ends_inv_g2, j, pos, beta, inv_g2,
-                     beta_dot):
-            ref[j] = -1
-            disp[j, :] = 0.0
+                     beta_dot, ref, disp):
             continue
         p = find_piece(breaks, t[j])
         i = interval_of[p]
