@@ -26,7 +26,7 @@ import numpy as np
 from scipy import constants
 
 from .errors import MotionError
-from .motion import SLIP_FRACTION, checked_motion, slip_report
+from .motion import SLIP_FRACTION, checked_motion
 from .resolution import check_resolution
 from .tracks import iter_tracks
 from .wording import plural
@@ -72,7 +72,7 @@ def inspect_tracks(path, *, resolution_s=None, motion_options=None, **read_optio
         except MotionError as error:
             refused.append({"particle": track.particle, "message": str(error)})
             continue
-        report = slip_report(motion)
+        report = motion.slip
         if report is not None:
             i = report.worst()
             slips.append({"particle": track.particle, "t_s": float(report.t_s[i]),

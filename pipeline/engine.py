@@ -126,11 +126,14 @@ def _ballistic_retarded(t_obs, observers, r_end, beta_end, inv_g2, t_end, far):
     return t_end + c0 / (b + np.sqrt(b * b - a * c0))
 
 
-def source_span(motion: Motion, group, edge_lo, edge_hi, far, extend: str):
+def source_span(motion: Motion, group, edge_lo, edge_hi, far, extend: str, ends):
     """(span, seen): the source-time interval (t_lo, t_hi) whose light covers observer
     times [edge_lo, edge_hi] at every point (conservative: it may be wider), and per point
-    the source times (seen_lo (P,), seen_hi (P,)) whose light reaches it in its window."""
-    r_ends, beta_ends, g_ends, _ = motion.evaluate(np.array([motion.t_first, motion.t_last]))
+    the source times (seen_lo (P,), seen_hi (P,)) whose light reaches it in its window.
+    `ends`: the track's end samples (see `_extension_ends`)."""
+    r_ends = ends[:, deposit.END_X:deposit.END_X + 3]
+    beta_ends = ends[:, deposit.END_BX:deposit.END_BX + 3]
+    g_ends = ends[:, deposit.END_IG2]
     lo = _ballistic_retarded(edge_lo, group.points_m, r_ends[0], beta_ends[0], g_ends[0],
                              motion.t_first, far)
     hi = _ballistic_retarded(edge_hi, group.points_m, r_ends[1], beta_ends[1], g_ends[1],
@@ -176,11 +179,18 @@ def _check_reach(t, positions_m, group, motion, far, seen):
             "Move the point off the track")
 
 
+def _insert_stops(t, state, where, source):
+    """Copies of the samples `source` (same time, position, velocity and references; zero
+    acceleration) inserted before the indices `where`."""
+    inserted = tuple(np.insert(a, where, np.zeros_like(a[source]) if i == 3 else a[source],
+                               axis=0) for i, a in enumerate(state))
+    return np.insert(t, where, t[source]), inserted
+
+
 def _split_track_ends(t, state, motion):
     """Where the sampled track meets its ballistic extension the acceleration jumps: the
     sample there is doubled (same time, position and velocity; zero acceleration on the
     extension side), so that each side's segment sees its own one-sided values."""
-    pos, beta, inv_g2, beta_dot = state
     inserts = []
     first = np.searchsorted(t, motion.t_first)
     if 0 < first < t.size and t[first] == motion.t_first:
@@ -190,14 +200,7 @@ def _split_track_ends(t, state, motion):
         inserts.append((last + 1, last))  # and after
     if not inserts:
         return t, state
-    where = [at for at, _ in inserts]
-    source = [j for _, j in inserts]
-    t = np.insert(t, where, t[source])
-    pos = np.insert(pos, where, pos[source], axis=0)
-    beta = np.insert(beta, where, beta[source], axis=0)
-    inv_g2 = np.insert(inv_g2, where, inv_g2[source])
-    beta_dot = np.insert(beta_dot, where, np.zeros((len(inserts), 3)), axis=0)
-    return t, (pos, beta, inv_g2, beta_dot)
+    return _insert_stops(t, state, [at for at, _ in inserts], [j for _, j in inserts])
 
 
 def _neighbours(t):
@@ -206,7 +209,8 @@ def _neighbours(t):
 
 
 def source_samples(motion: Motion, group, span, settings: FieldSettings, far, seen):
-    """Source times, adaptively refined, and the motion at them. `seen` (seen_lo (P,),
+    """Source times, adaptively refined, and the motion at them with its references (the
+    7-tuple of `Motion.evaluate_referenced`). `seen` (seen_lo (P,),
     seen_hi (P,)): the source times whose light each point sees in its window; only there
     does a point's distance limit the step (and count for the reach check)."""
     t_lo, t_hi = span
@@ -218,12 +222,12 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far, se
     t = np.unique(np.concatenate([[t_lo], inner, knots[-1:], [t_hi]]))
     t = t[(t >= t_lo) & (t <= t_hi)]
     targets = far[0] if far is not None else group.points_m
-    state = motion.evaluate(t)
+    state = motion.evaluate_referenced(t)
     resolution = settings.resolution_s()
 
     def step_limits(times, motion_state, before, after):
         limits = np.empty(times.size)
-        sampling.source_step_limits(*motion_state, before, after, targets, seen[0], seen[1],
+        sampling.source_step_limits(*motion_state[:4], before, after, targets, seen[0], seen[1],
                                     far is not None, resolution, SAMPLES_PER_BIN,
                                     ANGLE_TOLERANCE, limits)
         return limits
@@ -251,7 +255,7 @@ def source_samples(motion: Motion, group, span, settings: FieldSettings, far, se
         widths = np.repeat(np.diff(t)[bad] / (counts + 1), counts)
         rank = np.arange(counts.sum()) - np.repeat(np.cumsum(counts) - counts, counts) + 1
         new_t = starts + widths * rank
-        new_state = motion.evaluate(new_t)
+        new_state = motion.evaluate_referenced(new_t)
         new_limits = step_limits(new_t, new_state, new_t - widths, new_t + widths)
         order = np.argsort(np.concatenate([t, new_t]), kind="stable")
         t = np.concatenate([t, new_t])[order]
@@ -282,11 +286,7 @@ def _radiation_stops(t, state, motion: Motion):
         return t, state
     where = ([0] if head else []) + ([t.size] if tail else [])
     source = ([0] if head else []) + ([t.size - 1] if tail else [])
-    pos, beta, inv_g2, beta_dot = state
-    return np.insert(t, where, t[source]), (
-        np.insert(pos, where, pos[source], axis=0), np.insert(beta, where, beta[source], axis=0),
-        np.insert(inv_g2, where, inv_g2[source]),
-        np.insert(beta_dot, where, np.zeros((len(where), 3)), axis=0))
+    return _insert_stops(t, state, where, source)
 
 
 # ---------------------------------------------------------------------------- engine
@@ -332,8 +332,9 @@ class FieldAccumulator:
     def add(self, motion: Motion) -> None:
         edge_lo = self.edge0
         edge_hi = self.edge0 + self.n_bins * self.settings.step_s
+        ends = _extension_ends(motion, self.settings.extend)
         span, seen = source_span(motion, self.group, edge_lo, edge_hi, self.far,
-                                 self.settings.extend)
+                                 self.settings.extend, ends)
         if self.far is not None:
             span, seen = _accelerated_part(span, seen, motion)
             if span is None:
@@ -342,11 +343,10 @@ class FieldAccumulator:
         if self.far is not None:
             t, state = _radiation_stops(t, state, motion)
         scale = motion.track.charge_c * motion.track.weight
-        ends = _extension_ends(motion, self.settings.extend)
+        state, reference = state[:4], state[4:]  # references: observer times keep digits
         if self.spectra is not None:
             self.spectra.add(t, state, motion.track.charge_c, motion.track.weight)
         self.fluence.add(t, state, motion.track.charge_c, motion.track.weight)
-        reference = motion.evaluate_referenced(t)[4:]  # observer times keep their digits
         self._pending.append((t, state, scale, ends, reference))
         self._pending_samples += t.size
         self.source_samples += t.size

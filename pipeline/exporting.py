@@ -55,53 +55,51 @@ def _snapshot(root: Path) -> dict[str, tuple]:
     return out
 
 
-def _checked_names(label: str, returned, staging: Path) -> list[str]:
-    """The names an exporter returned, checked: a list of relative paths that exist inside
-    `staging`. None (nothing said) is allowed: the directory is what counts."""
+def _check_returned(label: str, returned, staging: Path) -> None:
+    """PluginError unless what an exporter returned is a list of relative paths that exist
+    inside `staging`. None (nothing said) is allowed: the directory is what counts."""
     if returned is None:
-        return []
+        return
     if isinstance(returned, str | bytes) or not isinstance(returned, list | tuple):
-        raise PluginError(f"exporter {label} returned {type(returned).__name__} "
+        raise PluginError(f"{label} returned {type(returned).__name__} "
                           f"{returned!r:.80}; it must return a list of the file names it wrote")
     root = os.path.realpath(staging)
-    names = []
     for item in returned:
         if not isinstance(item, str | os.PathLike):
-            raise PluginError(f"exporter {label} returned {item!r:.80} among its file names; "
+            raise PluginError(f"{label} returned {item!r:.80} among its file names; "
                               "each must be a file name (str)")
         name = PurePath(item)
         if name.is_absolute() or ".." in name.parts or not name.parts:
-            raise PluginError(f"exporter {label} returned the file name '{item}': names must "
+            raise PluginError(f"{label} returned the file name '{item}': names must "
                               "be relative to the directory it was given, without '..'")
         path = staging / name
         if not os.path.lexists(path):
-            raise PluginError(f"exporter {label} says it wrote '{item}', but there is no such "
+            raise PluginError(f"{label} says it wrote '{item}', but there is no such "
                               "file in the directory it was given")
         if os.path.commonpath([root, os.path.realpath(path)]) != root:
-            raise PluginError(f"exporter {label} returned '{item}', which leads outside the "
+            raise PluginError(f"{label} returned '{item}', which leads outside the "
                               "directory it was given")
-        names.append(name.as_posix())
-    return names
 
 
 def run_exporters(signals, staging: Path, exporters, plugin_options: dict) -> list[str]:
     """Call every exporter (registry PluginInfo) on its own copy of `signals` with its
     `[plugins.<name>]` options, writing into `staging`; returns the files now there."""
+    before = _snapshot(staging)
     for info in exporters:
-        label = f"'{info.name}' ({info.distribution})"
-        before = _snapshot(staging)
+        label = info.quoted
         options = copy.deepcopy(dict(plugin_options.get(info.name, {})))
         with contained(info, f"writing results into {staging}"):
             returned = info.plugin.write(private_copy(signals), staging, options)
-        _checked_names(label, returned, staging)
+        _check_returned(label, returned, staging)
         after = _snapshot(staging)
         for name, identity in before.items():
             if after.get(name) != identity:
-                raise PluginError(f"exporter {label} changed or removed '{name}', written by "
+                raise PluginError(f"{label} changed or removed '{name}', written by "
                                   "an exporter before it; give the two exporters different "
                                   "file names")
         for name in set(after) - set(before):
             if name == SUMMARY_NAME or name.startswith(RESERVED_PREFIX):
-                raise PluginError(f"exporter {label} wrote '{name}', a name lagfield keeps for "
+                raise PluginError(f"{label} wrote '{name}', a name lagfield keeps for "
                                   "itself")
-    return list_files(staging)
+        before = after  # what this exporter left is what the next one must leave alone
+    return sorted(before)

@@ -104,6 +104,7 @@ class Motion:
         self.t_first = float(t[0])
         self.t_last = float(t[-1])
         self.has_momentum = track.u is not None
+        self.slip: SlipReport | None = None  # set by `checked_motion`
         if u_offset_s is None:
             u_offset_s = getattr(track, "u_offset_s", None)
         self.u_offset_s = float(u_offset_s or 0.0)
@@ -223,17 +224,18 @@ class Motion:
                                      self._knot_r, self._slip, self._u_coef, self._path, *ends,
                                      pos, beta, inv_g2, beta_dot, ref, disp)
             ref_t, ref_r = self._knots, self._knot_r
-            disp += np.where(ref[:, None] >= 0, self._start_offset[np.maximum(ref, 0)], 0.0)
         else:
             kernels.evaluate_positions(t_s, self._breaks, self._coef, *ends, pos, beta,
                                        inv_g2, beta_dot, ref, disp)
             ref_t, ref_r = self._breaks, self._coef[:, 0, :]
         extension = ref < 0
+        index = np.maximum(ref, 0)  # the extensions' rows are replaced below
+        if self.has_momentum:
+            disp += self._start_offset[index]
         before = t_s < self.t_first
-        ref_t = np.where(extension, np.where(before, self.t_first, self.t_last),
-                         ref_t[np.maximum(ref, 0)])
+        ref_t = np.where(extension, np.where(before, self.t_first, self.t_last), ref_t[index])
         ref_r = np.where(extension[:, None], np.where(before[:, None], *self._ends_r[:, None]),
-                         ref_r[np.maximum(ref, 0)])
+                         ref_r[index])
         disp = np.where(extension[:, None], pos - ref_r, disp)
         return pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp
 
@@ -267,10 +269,11 @@ class Motion:
 
 def checked_motion(track: Track, resolution_s: float, *, path=None, **options) -> Motion:
     """Motion(track, **options) after `check_slip` at the run's resolution and
-    `check_speed`; a MotionError names the track file `path` when given."""
+    `check_speed`, its SlipReport kept as `motion.slip`; a MotionError names the track
+    file `path` when given."""
     try:
         motion = Motion(track, **options)
-        check_slip(motion, resolution_s)
+        motion.slip = check_slip(motion, resolution_s)
         motion.check_speed()
     except MotionError as error:
         if path is None:

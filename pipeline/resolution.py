@@ -27,6 +27,9 @@ import math
 import numpy as np
 from scipy import constants, interpolate
 
+from .motion import velocity_of
+from .wording import plural
+
 PROBES_PER_INTERVAL = 8
 RING_FRACTION = 0.25  # overshoot / largest nearby sampled change of the component
 ACCEL_CHANGE = 0.5  # |Δ(Δβ/Δt)| between neighbouring intervals / the track's max |Δβ/Δt|
@@ -62,8 +65,7 @@ def sampled_velocity(track, degree: int) -> np.ndarray:
     """β (n, 3) at the samples: from ux, uy, uz, else the derivative of the positions'
     interpolating spline of `degree` (at most n − 1)."""
     if track.u is not None:
-        u = np.asarray(track.u, dtype=float)
-        return u / np.sqrt(1.0 + np.einsum("ij,ij->i", u, u))[:, None]
+        return velocity_of(np.asarray(track.u, dtype=float))
     k = min(degree, track.n_samples - 1)
     spline = interpolate.make_interp_spline(track.t_s, track.position_m, k=k, axis=0)
     return spline.derivative(1)(track.t_s) / constants.c
@@ -173,6 +175,6 @@ class ShortTracks:
             return []
         low, high = min(self.degrees_used), max(self.degrees_used)
         used = f"degree {low}" if low == high else f"degree {low}–{high}"
-        n = len(self.degrees_used)
-        return [f"{n} particle{'s' * (n != 1)} with fewer than {self.degree + 1} samples "
-                f"used {used} instead of {self.degree} ([motion] degree)"]
+        return [f"{plural(len(self.degrees_used), 'particle')} with fewer than "
+                f"{self.degree + 1} samples used {used} instead of {self.degree} ([motion] "
+                "degree)"]

@@ -130,8 +130,7 @@ def run_summary(run_file, config, *, tracks, results, registry, exporters=(), ti
         "inputs": {_relative(p, base): {"sha256": sha256(Path(p))} if Path(p).is_file()
                    else {"series": True} for p in inputs},  # a pattern or a directory
         "importer": None if importer is None else str(importer),
-        "exporters": [getattr(info, "label", f"{info.name} ({info.distribution})")
-                      for info in exporters],
+        "exporters": [info.label for info in exporters],
         "particles": len(tracks),
         "u_offset": u_offset_record(config.tracks.u_offset_s, tracks),
         "observer_groups": [result.group.name for result in results],

@@ -28,6 +28,7 @@ from scipy import constants
 from .errors import PluginError, TrackError, UnitError
 from .registry import contained
 from .units import to_si, unit_factor
+from .wording import plural
 
 REQUIRED_COLUMNS = ("particle", "t", "x", "y", "z")
 MOMENTUM_COLUMNS = ("ux", "uy", "uz")
@@ -528,7 +529,7 @@ class _Reader:
         if few.any():
             k = int(np.argmax(few))
             n = int(ends[k] - starts[k])
-            raise TrackError(f"only {n} sample{'s' * (n != 1)}, but a track needs at least "
+            raise TrackError(f"only {plural(n, 'sample')}, but a track needs at least "
                              f"{self.min_samples} (the motion between samples is a spline)",
                              path=self.path, particle=int(ids[starts[k]]),
                              row=int(rows[starts[k]]))
@@ -541,12 +542,9 @@ class _Reader:
                       u_offset_s=self.u_offset_s)
                 for k, (s, e) in enumerate(zip(starts.tolist(), ends.tolist(), strict=True))]
 
+    # huge but finite values may overflow to inf below: they then fail a check, quietly
+    @np.errstate(over="ignore", divide="ignore", invalid="ignore")
     def _check_steps(self, ids, t, rows, position, u):
-        # huge but finite values may overflow to inf below: they then fail a check, quietly
-        with np.errstate(over="ignore", divide="ignore", invalid="ignore"):
-            self._check_speeds(ids, t, rows, position, u)
-
-    def _check_speeds(self, ids, t, rows, position, u):
         same = ids[1:] == ids[:-1]
         dt = np.diff(t)
         duplicate = same & (dt == 0)
