@@ -5,8 +5,8 @@ to change when it cannot fit in the memory available.
 What is counted, per observer group (P points, N bins at the longest point, F
 frequencies, window W, top frequency f_max, lowest f_min):
   - the time grid: P × N bins of 6 bin integrals, then the E and B arrays made from them;
-  - the fields table built from it: one row per bin, about 10 columns of 8 bytes, made
-    per point and then concatenated (two copies);
+  - the fields table built from it: one row per bin, about 10 columns of 8 bytes, as
+    column arrays and then the table's block (two copies);
   - the spectra: P × F complex vectors Ẽ and a fluence, and their table;
   - the type-3 NUFFT of one point (held by one particle at a time): a fine grid of
     about σ·W·(f_max − f_min) complex numbers (a type-3 transform's fine grid has about
@@ -35,7 +35,7 @@ from .transforms import NUFFT_BYTES_PER_GRID_POINT, NUFFT_MEMORY_BYTES, nufft_gr
 from .wording import plural
 
 GRID_BYTES_PER_BIN = 12 * 8  # per point and bin: 6 bin integrals, then E and B (6 more)
-FIELDS_TABLE_BYTES_PER_ROW = 2 * 10 * 8  # ~10 columns of 8 bytes, per-point frames + concat
+FIELDS_TABLE_BYTES_PER_ROW = 2 * 10 * 8  # ~10 columns of 8 bytes: column arrays, then the table
 SPECTRUM_BYTES_PER_VALUE = 3 * 16 + 8  # per point and frequency: Ẽ (3 complex), fluence
 SPECTRA_TABLE_BYTES_PER_ROW = 2 * 12 * 8  # ~12 columns of 8 bytes, built and concatenated
 SOURCE_SAMPLE_BYTES = 40 * 8  # motion state (11 floats), refined copies, fields, weights

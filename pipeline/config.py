@@ -18,6 +18,7 @@ from .distributed import check_scheduler_address, check_workers
 from .errors import ConfigError
 from .observers import plane_axes, point_count
 from .tracks import CANONICAL_COLUMNS, DIMENSIONS
+from .typos import edit_distance, nearest  # noqa: F401  (edit_distance: part of this API)
 from .units import to_si, unit_factor
 
 # every key the run file may hold, per table
@@ -41,7 +42,6 @@ DEGREES = (3, 5)  # spline degrees the run file may ask for (odd: symmetric inte
 # memory check (budget.py) can weigh the run, so they are bounded here.
 MAX_POINTS_PER_GROUP = 10_000_000
 MAX_FREQUENCIES = 10_000_000
-MAX_TYPO_EDITS = 2  # a key this many edits from a known one gets a "did you mean" hint
 # keys of earlier versions, with what replaced them (an error, never silently ignored)
 REPLACED_KEYS = {
     ("tracks", "u_tolerance"): "was replaced by the slip check of positions against "
@@ -137,30 +137,6 @@ class RunConfig:
 
 
 # ---------------------------------------------------------------------------- key names
-def edit_distance(a: str, b: str) -> int:
-    """Damerau–Levenshtein distance (optimal string alignment): insertions, deletions,
-    substitutions and swaps of two neighbouring characters each count one edit."""
-    previous2, previous = None, list(range(len(b) + 1))
-    for i in range(1, len(a) + 1):
-        current = [i] + [0] * len(b)
-        for j in range(1, len(b) + 1):
-            cost = 0 if a[i - 1] == b[j - 1] else 1
-            current[j] = min(previous[j] + 1, current[j - 1] + 1, previous[j - 1] + cost)
-            if i > 1 and j > 1 and a[i - 1] == b[j - 2] and a[i - 2] == b[j - 1]:
-                current[j] = min(current[j], previous2[j - 2] + 1)
-        previous2, previous = previous, current
-    return previous[-1]
-
-
-def nearest(word: str, choices) -> str | None:
-    """The choice fewest edits away from `word` (ties: the first in sorted order), if it
-    is at most MAX_TYPO_EDITS away and shares more than half of the word."""
-    ranked = sorted((edit_distance(word.lower(), c.lower()), c) for c in choices)
-    if ranked and ranked[0][0] <= min(MAX_TYPO_EDITS, (len(word) - 1) // 2 + 1):
-        return ranked[0][1]
-    return None
-
-
 def _unknown(word: str, choices, what: str) -> str:
     """"unknown key 'stpe'; did you mean 'step'?" (or the known names, when none is close)."""
     close = nearest(word, choices)

@@ -11,7 +11,6 @@ already read and checked, so a bad entry stops the run before any field is compu
 from __future__ import annotations
 
 import dataclasses
-import difflib
 import math
 import warnings
 from pathlib import Path
@@ -23,6 +22,7 @@ from .chain import ELEMENTS, Butterworth, Gain, ImpulseResponse, Touchstone
 from .digitizer import MAX_BITS, Digitizer
 from .errors import DetectorError, LagfieldError
 from .sensors import REFERENCE_LOAD_OHM, SENSORS, EffectiveArea, EffectiveLength, Electrode
+from .typos import nearest
 from .units import gain_factor, to_si
 
 # every key a [[detectors]] entry may hold, per table
@@ -66,8 +66,8 @@ def _keys(table, section: str, place: str) -> dict:
     allowed = sorted(DETECTOR_KEYS[section])
     for key in table:
         if key not in allowed:
-            close = difflib.get_close_matches(key, allowed, n=1, cutoff=0.5)
-            hint = f"did you mean '{close[0]}'?" if close else f"known: {', '.join(allowed)}"
+            close = nearest(key, allowed)
+            hint = f"did you mean '{close}'?" if close else f"known: {', '.join(allowed)}"
             raise DetectorError(f"{place}: unknown key '{key}' in {section}; {hint}")
     return table
 
@@ -83,8 +83,6 @@ def _quantity(value, dimension: str, place: str, *, positive: bool = False) -> f
         number = to_si(value, dimension, where=place)
     except LagfieldError as exc:
         raise DetectorError(str(exc)) from None
-    if not math.isfinite(number):
-        raise DetectorError(f"{place}: must be finite, got {value!r}")
     if positive and not number > 0.0:
         raise DetectorError(f"{place}: must be positive, got {value!r}")
     return number
@@ -323,8 +321,8 @@ def _points(entry: dict, place: str) -> tuple | None:
 
 def _check_reach(detector: DetectorConfig, groups: dict, place: str) -> None:
     if detector.observer not in groups:
-        close = difflib.get_close_matches(detector.observer, sorted(groups), n=1)
-        hint = f"; did you mean '{close[0]}'?" if close else \
+        close = nearest(detector.observer, groups)
+        hint = f"; did you mean '{close}'?" if close else \
             f"; groups: {', '.join(sorted(groups)) or 'none'}"
         raise DetectorError(f"{place}: observer group '{detector.observer}' does not "
                             f"exist{hint}")
@@ -430,13 +428,11 @@ def detector_tables(detectors, group_fields_by_name: dict):
     """(voltages, digitized or None): SPEC's tables for `detectors`, from the engine's
     GroupFields by observer group name. digitized is None when no detector digitizes."""
     voltages, digitized = [], []
+    counts = {name: len(fields.n_bins) for name, fields in group_fields_by_name.items()}
     for detector in detectors:
-        place = f"detector '{detector.name}'"
-        if detector.observer not in group_fields_by_name:
-            _check_reach(detector, {name: 0 for name in group_fields_by_name}, place)
+        _check_reach(detector, counts, f"detector '{detector.name}'")
         fields = group_fields_by_name[detector.observer]
-        count = len(fields.n_bins)
-        _check_reach(detector, {detector.observer: count}, place)
+        count = counts[detector.observer]
         check_step(detector, fields.step_s, "")
         rng = detector.digitizer.rng() if detector.digitizer else None
         analog, sampled = [], []

@@ -27,6 +27,7 @@ from scipy import constants
 
 from . import transforms
 from .kernels import pointwise, quadrature
+from .tables import SPECTRUM_COLUMNS, spectra_table
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
 SPECTRUM_BUFFER_SAMPLES = 1_000_000  # source samples (~100 bytes each) held before a transform
@@ -194,9 +195,10 @@ class SpectrumAccumulator:
                    "f": np.tile(f, n_p)}
         if self.settings.coherent:
             flat = self.spectrum.reshape(n_p * f.size, 3)
-            for i, axis in enumerate("xyz"):
-                columns[f"E{axis}_re"] = flat[:, i].real.copy()
-                columns[f"E{axis}_im"] = flat[:, i].imag.copy()
+            pairs = zip(SPECTRUM_COLUMNS[::2], SPECTRUM_COLUMNS[1::2], strict=True)
+            for i, (real, imaginary) in enumerate(pairs):
+                columns[real] = flat[:, i].real.copy()
+                columns[imaginary] = flat[:, i].imag.copy()
             values = fluence(self.spectrum)
         else:
             values = self.fluence
@@ -209,6 +211,4 @@ class SpectrumAccumulator:
 
     def table(self):
         """SPEC's spectra table for this group."""
-        from .tables import spectra_table
-
         return spectra_table([self])

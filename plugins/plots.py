@@ -16,7 +16,6 @@ The helpers that turn tables into grids need only NumPy and the pandas tables th
 from __future__ import annotations
 
 import dataclasses
-import difflib
 import math
 import pathlib
 import re
@@ -28,6 +27,7 @@ from scipy import constants
 
 import lagfield
 from lagfield.errors import ConfigError
+from lagfield.typos import nearest
 from lagfield.units import to_si
 
 if TYPE_CHECKING:  # pandas loads with the tables it is given, not with this module
@@ -64,8 +64,8 @@ def parse_options(options: dict) -> PlotOptions:
     options = dict(options or {})
     for key in options:
         if key not in OPTION_DEFAULTS:
-            close = difflib.get_close_matches(key, OPTION_DEFAULTS, n=1)
-            hint = f" (did you mean '{close[0]}'?)" if close else ""
+            close = nearest(key, OPTION_DEFAULTS)
+            hint = f" (did you mean '{close}'?)" if close else ""
             raise ConfigError(f"{WHERE}: unknown key '{key}'{hint}; known keys: "
                               f"{', '.join(OPTION_DEFAULTS)}")
     merged = {**OPTION_DEFAULTS, **options}
