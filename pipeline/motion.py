@@ -24,7 +24,9 @@ h = t_{i+1} − t_i, y = τ/h):
   - 1/γ² = 1/(1 + u²) − 2β_u·δβ − |δβ|², which keeps its digits at any γ, and
     β̇ = (u′ − β_u(β_u·u′))/γ + δβ′. A slip below what the samples' rounding can resolve
     (ROUNDING_ULPS units in the last place of |r|/c, of t and of the path, plus the fit's
-    error) is no information and is not corrected, so uniform motion stays exactly uniform.
+    error) is no information and is not corrected, so uniform motion stays exactly uniform;
+    the steady part of those slips (β rounded alike in every interval) is carried by the
+    path as a constant rate, so that they do not add up to a drift from the samples.
 The slip measures how far the samples are from one motion; `check_slip` compares the
 largest |D_i| with SLIP_FRACTION of the time scale the run resolves, the ratio of the summed
 chords to the summed c·∫β_u with UNIT_RATIO_LIMIT (a gross unit mistake), and the shift of
@@ -186,12 +188,18 @@ class Motion:
         self.integral_m = integral
         resolved = np.linalg.norm(slip, axis=1) > floor_s
         self._slip = np.ascontiguousarray(np.where(resolved[:, None], slip, 0.0))
-        # where a slip is rounding and left out, interval i ends a rounding error away from
-        # sample i+1: the offset of each interval's start from its sample that keeps the
-        # motion continuous (its light times too, at γ ≳ 10⁴ where 1e-13 m is visible)
+        # a slip at the rounding floor is left out of the velocity (uniform motion stays
+        # exactly uniform), so interval i ends a rounding error away from sample i+1; each
+        # interval starts at the offset from its sample that keeps the motion continuous
+        # (its light times too, at γ ≳ 10⁴ where 1e-13 m is visible). The steady part of
+        # those errors (β rounded the same way in every interval) would add up to a drift
+        # from the samples: the path, not the velocity, carries it as a constant rate
         reached = integral + C * self._slip - chord
+        h = np.diff(t)
+        drift_m_per_s = reached.sum(axis=0) / h.sum()
+        self._chord_slip = np.ascontiguousarray(self._slip - np.outer(h, drift_m_per_s) / C)
         self._start_offset = np.zeros((t.size, 3))
-        np.cumsum(reached, axis=0, out=self._start_offset[1:])
+        np.cumsum(reached - np.outer(h, drift_m_per_s), axis=0, out=self._start_offset[1:])
         self._breaks = breaks
         self._interval_of = interval_of.astype(np.int64)
         self._knots = np.ascontiguousarray(t)
@@ -221,7 +229,8 @@ class Motion:
         ends = (self._ends_r, self._ends_beta, self._ends_inv_g2)
         if self.has_momentum:
             kernels.evaluate_momenta(t_s, self._breaks, self._interval_of, self._knots,
-                                     self._knot_r, self._slip, self._u_coef, self._path, *ends,
+                                     self._knot_r, self._slip, self._chord_slip,
+                                     self._u_coef, self._path, *ends,
                                      pos, beta, inv_g2, beta_dot, ref, disp)
             ref_t, ref_r = self._knots, self._knot_r
         else:

@@ -107,14 +107,17 @@ def chebyshev(coef, p, c, x):
 
 
 @jit
-def evaluate_momenta(t, breaks, interval_of, knots, knot_r, slip_s, u_coef, path_cheb,
-                     ends_r, ends_beta, ends_inv_g2, pos, beta, inv_g2, beta_dot, ref, disp):
+def evaluate_momenta(t, breaks, interval_of, knots, knot_r, slip_s, chord_slip_s, u_coef,
+                     path_cheb, ends_r, ends_beta, ends_inv_g2, pos, beta, inv_g2, beta_dot,
+                     ref, disp):
     """Motion with momenta at times t (K,); outputs as `evaluate_positions`, the reference
     of a sample being the start of its position interval (time knots[i], knot_r[i]).
 
     breaks (P+1,) pieces; interval_of (P,) position interval of each piece; knots (n,)
-    sample times t_i; knot_r (n, 3) m; slip_s (n−1, 3) D_i; u_coef (P, k+1, 3);
-    path_cheb (P, M, 3) m."""
+    sample times t_i; knot_r (n, 3) m; slip_s (n−1, 3) D_i, the slip the velocity carries;
+    chord_slip_s (n−1, 3) the slip the path carries (it differs from D_i by a rounding
+    slip's steady part, below what β can hold); u_coef
+    (P, k+1, 3); path_cheb (P, M, 3) m."""
     n_coef = u_coef.shape[1]
     u = np.empty(3)
     du = np.empty(3)
@@ -140,7 +143,7 @@ def evaluate_momenta(t, breaks, interval_of, knots, knot_r, slip_s, u_coef, path
                 value = value * s + u_coef[p, m, c]
             u[c] = value
             du[c] = slope
-            disp[j, c] = chebyshev(path_cheb, p, c, x) + C * slip_s[i, c] * bump_area
+            disp[j, c] = chebyshev(path_cheb, p, c, x) + C * chord_slip_s[i, c] * bump_area
             pos[j, c] = knot_r[i, c] + disp[j, c]
         u2 = u[0] * u[0] + u[1] * u[1] + u[2] * u[2]
         gamma = math.sqrt(1.0 + u2)
