@@ -78,6 +78,11 @@ CHEBYSHEV_NODES = (16, 32, 64, 128)  # node counts tried in turn
 ROUNDING_ULPS = 8  # slips below this many units in the last place are rounding
 MERGE_FRACTION = 1e-6  # a spline knot this close (× interval) to a sample is that sample
 EPS = np.finfo(float).eps
+# the other kind's arrays in a motion record (`Motion.record`)
+_NO_PIECES = np.zeros((0, 1, 3))
+_NO_ROWS = np.zeros((0, 3))
+_NO_TIMES = np.zeros(0)
+_NO_INTERVALS = np.zeros(0, dtype=np.int64)
 
 
 class Motion:
@@ -224,29 +229,25 @@ class Motion:
         beta = np.empty((t_s.size, 3))
         inv_g2 = np.empty(t_s.size)
         beta_dot = np.empty((t_s.size, 3))
-        ref = np.empty(t_s.size, dtype=np.int64)
+        ref_t = np.empty(t_s.size)
+        ref_r = np.empty((t_s.size, 3))
         disp = np.empty((t_s.size, 3))
+        kernels.evaluate_state(*self.record, t_s, pos, beta, inv_g2, beta_dot, ref_t, ref_r,
+                               disp)
+        return pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp
+
+    @property
+    def record(self) -> tuple:
+        """The motion as the compiled kernels take it (`lagfield.kernels.motion`):
+        (has_momentum, breaks, coef, interval_of, knots, knot_r, slip_s, chord_slip_s,
+        u_coef, path_cheb, start_offset, ends_r, ends_beta, ends_inv_g2)."""
         ends = (self._ends_r, self._ends_beta, self._ends_inv_g2)
         if self.has_momentum:
-            kernels.evaluate_momenta(t_s, self._breaks, self._interval_of, self._knots,
-                                     self._knot_r, self._slip, self._chord_slip,
-                                     self._u_coef, self._path, *ends,
-                                     pos, beta, inv_g2, beta_dot, ref, disp)
-            ref_t, ref_r = self._knots, self._knot_r
-        else:
-            kernels.evaluate_positions(t_s, self._breaks, self._coef, *ends, pos, beta,
-                                       inv_g2, beta_dot, ref, disp)
-            ref_t, ref_r = self._breaks, self._coef[:, 0, :]
-        extension = ref < 0
-        index = np.maximum(ref, 0)  # the extensions' rows are replaced below
-        if self.has_momentum:
-            disp += self._start_offset[index]
-        before = t_s < self.t_first
-        ref_t = np.where(extension, np.where(before, self.t_first, self.t_last), ref_t[index])
-        ref_r = np.where(extension[:, None], np.where(before[:, None], *self._ends_r[:, None]),
-                         ref_r[index])
-        disp = np.where(extension[:, None], pos - ref_r, disp)
-        return pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp
+            return (True, self._breaks, _NO_PIECES, self._interval_of, self._knots,
+                    self._knot_r, self._slip, self._chord_slip, self._u_coef, self._path,
+                    self._start_offset, *ends)
+        return (False, self._breaks, self._coef, _NO_INTERVALS, _NO_TIMES, _NO_ROWS,
+                _NO_ROWS, _NO_ROWS, _NO_PIECES, _NO_PIECES, _NO_ROWS, *ends)
 
     # ------------------------------------------------------------------ checks
     def check_speed(self) -> None:
