@@ -111,7 +111,7 @@ class SpectrumConfig:
 class ComputeConfig:
     workers: int | None = None
     scheduler: str | None = None
-    chunk: int = 2000
+    chunk: int | None = None  # particles per task; None: chosen for the workers
 
 
 @dataclasses.dataclass(frozen=True)
@@ -413,7 +413,7 @@ def _compute(raw: dict) -> ComputeConfig:
         else check_workers(compute["workers"], "[compute] workers"),
         scheduler=None if "scheduler" not in compute
         else check_scheduler_address(compute["scheduler"], "[compute] scheduler"),
-        chunk=_whole(compute.get("chunk", 2000), "[compute] chunk"))
+        chunk=None if "chunk" not in compute else _whole(compute["chunk"], "[compute] chunk"))
 
 
 def _output(raw: dict, base_dir: Path) -> OutputConfig:

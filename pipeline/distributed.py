@@ -26,6 +26,11 @@ from .errors import ConfigError, LagfieldError
 
 CONNECT_TIMEOUT_S = 10.0
 TASK_RETRIES = 3
+# The default chunk: several tasks per worker, so a worker that finishes early takes
+# another (the last tasks end close together); a task holds its particles' rows in memory,
+# about 80 bytes a row as columns, a few times that while reading, so at most 1e6 rows.
+TASKS_PER_WORKER = 4
+MAX_TASK_ROWS = 1_000_000
 SCHEDULER_SCHEMES = ("tcp", "tls", "ucx", "ws", "wss")  # Dask's network protocols
 
 
@@ -57,6 +62,15 @@ def check_scheduler_address(text, where: str) -> str:
                           f"SCHEME://HOST:PORT such as tcp://head-node:8786 (SCHEME one of "
                           f"{', '.join(SCHEDULER_SCHEMES)})")
     return address
+
+
+def default_chunk(n_particles: int, n_rows: int, n_workers: int) -> int:
+    """Particles per task when the run file gives no `[compute] chunk`: TASKS_PER_WORKER
+    tasks for each of `n_workers`, fewer particles when a task would hold more than
+    MAX_TASK_ROWS rows (`n_rows` rows in all), at least 1."""
+    per_worker = n_particles // (TASKS_PER_WORKER * max(n_workers, 1))
+    rows_per_particle = max(n_rows, 1) / max(n_particles, 1)
+    return max(1, min(per_worker, int(MAX_TASK_ROWS // rows_per_particle)))
 
 
 def particle_chunks(particle_ids, chunk: int):
@@ -134,16 +148,22 @@ def dask_setup(worker) -> None:
 
 
 def compute_distributed(client, path, read_options, particle_ids, groups, settings, *,
-                        spectrum=None, windows, chunk: int, progress=None):
+                        spectrum=None, windows, chunk: int | None = None, n_rows=None,
+                        progress=None):
     """GroupFields of all particles, computed chunk by chunk on the client's workers.
+    chunk: particles per task; None: `default_chunk` for the cluster's worker threads
+    (and `n_rows`, the rows of the track file, default 50 a particle).
     progress(n) is called with the number of particles of each chunk as it completes."""
     from dask.distributed import as_completed
 
-    ranges = particle_chunks(particle_ids, chunk)
+    ids = np.unique(np.asarray(particle_ids, dtype=np.int64))
+    if chunk is None:
+        chunk = default_chunk(ids.size, 50 * ids.size if n_rows is None else n_rows,
+                              sum(client.nthreads().values()))
+    ranges = particle_chunks(ids, chunk)
     if not ranges:
         raise LagfieldError("the track file holds no particles")
     sizes = {}
-    ids = np.unique(np.asarray(particle_ids, dtype=np.int64))
     futures = []
     for low, high in ranges:
         future = client.submit(chunk_fields, path, read_options, (low, high), groups, settings,

@@ -19,13 +19,12 @@ which was used.
 from __future__ import annotations
 
 import numpy as np
-from scipy import constants, integrate
+from scipy import integrate
 
-from .kernels import pointwise, quadrature
+from .constants import COULOMB, EPS0_C
+from .kernels import quadrature
 from .spectra import fluence as spectral_density
-
-EPS0_C = constants.epsilon_0 * constants.c
-COULOMB = 1.0 / (4.0 * np.pi * constants.epsilon_0)
+from .spectra import observed_fields
 
 TABLE_COLUMNS = ("observer", "point", "fluence", "dW_dOmega", "method")
 METHOD_EXACT = "exact, from the source motion"
@@ -78,11 +77,11 @@ class FluenceAccumulator:
     """Exact energy fluence of one group's points, to which particles' source samples are
     added; stops computing (and gives None) once a coherent sum has a second track."""
 
-    def __init__(self, group, start_s, stop_s, far=None, coherent: bool = True):
+    def __init__(self, group, start_s, stop_s, geometry=None, coherent: bool = True):
         self.group = group
         self.start_s = np.broadcast_to(np.asarray(start_s, dtype=float), (group.n_points,))
         self.stop_s = np.broadcast_to(np.asarray(stop_s, dtype=float), (group.n_points,))
-        self.far = far
+        self.geometry = group.geometry(False) if geometry is None else geometry
         self.coherent = coherent
         self.energy = np.zeros(group.n_points)  # Σ factor × ∫|E|² dt, V²·s/m²
         self.tracks = 0
@@ -95,10 +94,9 @@ class FluenceAccumulator:
         self.tracks += 1
         if not self.exact:
             return
-        t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
         factor = (COULOMB * charge_c) ** 2 * (weight * weight if self.coherent else weight)
         for p in range(self.group.n_points):
-            pointwise.point_fields(t, state, p, self.group.points_m, self.far, t_obs, e, kappa)
+            t_obs, e, kappa = observed_fields(t, state, self.geometry, p)
             self.energy[p] += factor * window_energy(t, t_obs, e, kappa, self.start_s[p],
                                                      self.stop_s[p])
 

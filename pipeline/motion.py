@@ -34,6 +34,11 @@ the momentum times that best explains the slips with OFFSET_FRACTION of a step.
 
 Outside the sampled span the motion is ballistic (constant velocity, the velocity at the
 first or last sample); `extend` is kept for the engine, which limits the source span.
+
+A chunk of tracks is built at once by `build_motions` / `checked_motions`: tracks sampled
+at the same times (tracking and particle-in-cell output) form a group that shares one
+spline fit, its pieces, and every vectorised step; `Motion(track)` is a group of one, so
+both give the same motion to the bit. The motions of a group hold views of its arrays.
 """
 
 from __future__ import annotations
@@ -78,11 +83,22 @@ CHEBYSHEV_NODES = (16, 32, 64, 128)  # node counts tried in turn
 ROUNDING_ULPS = 8  # slips below this many units in the last place are rounding
 MERGE_FRACTION = 1e-6  # a spline knot this close (× interval) to a sample is that sample
 EPS = np.finfo(float).eps
-# the other kind's arrays in a motion record (`Motion.record`)
-_NO_PIECES = np.zeros((0, 1, 3))
-_NO_ROWS = np.zeros((0, 3))
-_NO_TIMES = np.zeros(0)
+BATCH_SAMPLES = 1 << 17  # samples of the tracks built in one batch at most (scratch memory)
+# tracks in one spline fit at most: with more right-hand sides the banded solve's rank-1
+# updates go multi-threaded in OpenBLAS (measured: from ~550 tracks of degree 5), which
+# stalls for a time slice at every step on a busy machine
+BATCH_TRACKS = 512
+# The vectorised checks of a chunk flag a track this close to a limit (relative) for the
+# exact check of that track alone, whatever the rounding of a sum: slip and speed ratios,
+# and |β|² against 1 (units in the last place).
+CHECK_MARGIN = 1e-9
+SPEED_MARGIN = 8 * EPS
+# the other kind's arrays in a group record (shared: interval_of, knots)
 _NO_INTERVALS = np.zeros(0, dtype=np.int64)
+_NO_TIMES = np.zeros(0)
+# which fields of a record (`Motion.record`) have a leading motion axis in a group's
+_PER_MOTION = (False, False, True, False, False, True, True, True, True, True, True, True,
+               True, True)
 
 
 class Motion:
@@ -93,12 +109,20 @@ class Motion:
     degree: the spline degree asked for (3 or 5); `degree_used` is lower for tracks of
     fewer than degree + 1 samples (n − 1). u_offset_s: the momenta were sampled at
     t + u_offset_s (default: the track's own `u_offset_s`, else 0).
+
+    Motions built together (`build_motions`) hold views of their group's arrays: the
+    motions of a chunk keep that chunk's arrays alive, and are dropped with the chunk.
     """
 
     def __init__(self, track: Track, *, degree: int = 5, extend: str = "ballistic",
                  smoothing_m: float = 0.0, u_offset_s: float | None = None):
-        if degree not in (3, 5):
-            raise ValueError(f"spline degree must be 3 or 5, not {degree}")
+        _check_degree(degree)
+        t = self._describe(track, degree, extend, u_offset_s)
+        _build_group([self], np.zeros(1, dtype=np.int64), t, smoothing_m)
+
+    # ------------------------------------------------------------------ construction
+    def _describe(self, track, degree, extend, u_offset_s) -> np.ndarray:
+        """Take what the track and the options say; return the track's sample times."""
         self.track = track
         self.particle = track.particle
         self.degree = degree
@@ -115,102 +139,17 @@ class Motion:
         if u_offset_s is None:
             u_offset_s = getattr(track, "u_offset_s", None)
         self.u_offset_s = float(u_offset_s or 0.0)
-        self._ends_r = np.zeros((2, 3))
-        self._ends_beta = np.zeros((2, 3))
-        self._ends_inv_g2 = np.ones(2)
-        if self.has_momentum:
-            if smoothing_m > 0.0:
-                raise MotionError(
-                    f"particle {self.particle}: [motion] smoothing is for positions-only "
-                    "tracks; with ux, uy, uz the velocity comes from the momenta and the "
-                    "positions are its integral through every sample. Remove [motion] "
-                    "smoothing, or map the momentum columns away to smooth noisy positions")
-            with np.errstate(over="ignore", invalid="ignore"):  # absurd u: check_slip says so
-                self._build_with_momenta(t, np.asarray(track.position_m, dtype=float),
-                                         np.asarray(track.u, dtype=float))
-        else:
-            self._build_positions(t, np.asarray(track.position_m, dtype=float), smoothing_m)
-        r, beta, inv_g2, _ = self.evaluate(np.array([self.t_first, self.t_last]))
-        self._ends_r, self._ends_beta, self._ends_inv_g2 = r, beta, inv_g2
+        return t
 
-    # ------------------------------------------------------------------ construction
-    def _build_positions(self, t, position_m, smoothing_m):
-        k = self.degree_used
-        tau = t - t[0]
-        if smoothing_m > 0.0:
-            s = t.size * smoothing_m**2
-            splines = [interpolate.make_splrep(tau, position_m[:, i], k=k, s=s)
-                       for i in range(3)]
-        else:
-            splines = [interpolate.make_interp_spline(tau, position_m, k=k)]
-        self._breaks = breakpoints(t, np.concatenate([t[0] + s.t for s in splines]))
-        start = self._breaks[:-1] - t[0]
-        coef = [taylor_coefficients(s, start, k) for s in splines]
-        self._coef = np.ascontiguousarray(
-            coef[0] if len(coef) == 1 else np.stack(coef, axis=-1))
-
-    def _build_with_momenta(self, t, position_m, u):
-        k = self.degree_used
-        offset = self.u_offset_s
-        t_u = t + offset  # when the momenta were sampled
-        first_gap = t_u[0] - t[0]
-        last_gap = t[-1] - t_u[-1]
-        if max(first_gap / (t_u[1] - t_u[0]), last_gap / (t_u[-1] - t_u[-2])) > 1.0 + 1e-9:
-            raise MotionError(
-                f"particle {self.particle}: u_offset = {offset:.6g} s puts the momenta more "
-                "than one sample interval away from the positions at the track's "
-                f"{'start' if first_gap > last_gap else 'end'}; u_offset should be a "
-                "fraction of the step between samples (e.g. minus half a step for a "
-                "leapfrog pusher)")
-        spline = interpolate.make_interp_spline(t_u - t[0], u, k=k)
-        breaks = breakpoints(t, t[0] + spline.t)
-        width = np.diff(breaks)
-        interval_of = np.clip(np.searchsorted(t, breaks[:-1], side="right") - 1, 0,
-                              t.size - 2)
-        u_coef = taylor_coefficients(spline, breaks[:-1] - t[0], k)
-        path, total, fit_error = path_series(u_coef, width)
-
-        # pieces of one interval: each starts where the previous one ended
-        first_piece = np.searchsorted(interval_of, interval_of, side="left")
-        rank = np.arange(interval_of.size) - first_piece
-        for r in range(1, int(rank.max()) + 1):
-            later = np.flatnonzero(rank == r)
-            path[later, 0, :] += path[later - 1].sum(axis=1)  # its value at x = 1
-        integral = np.zeros((t.size - 1, 3))
-        np.add.at(integral, interval_of, total)
-        chord = np.diff(position_m, axis=0)
-        slip = (chord - integral) / C
-        size_r = np.maximum(np.linalg.norm(position_m[:-1], axis=1),
-                            np.linalg.norm(position_m[1:], axis=1))
-        size_t = np.maximum(np.abs(t[:-1]), np.abs(t[1:]))
-        path_length = np.zeros(t.size - 1)
-        np.add.at(path_length, interval_of, np.linalg.norm(total, axis=1))
-        fit = np.zeros(t.size - 1)
-        np.add.at(fit, interval_of, fit_error * width)
-        floor_s = ROUNDING_ULPS * EPS * (size_r / C + size_t + path_length / C) + fit
-        self.raw_slip_s = slip
-        self.chord_m = chord
-        self.integral_m = integral
-        resolved = np.linalg.norm(slip, axis=1) > floor_s
-        self._slip = np.ascontiguousarray(np.where(resolved[:, None], slip, 0.0))
-        # a slip at the rounding floor is left out of the velocity (uniform motion stays
-        # exactly uniform), so interval i ends a rounding error away from sample i+1; each
-        # interval starts at the offset from its sample that keeps the motion continuous
-        # (its light times too, at γ ≳ 10⁴ where 1e-13 m is visible). The steady part of
-        # those errors (β rounded the same way in every interval) would add up to a drift
-        # from the samples: the path, not the velocity, carries it as a constant rate
-        reached = integral + C * self._slip - chord
-        h = np.diff(t)
-        drift_m_per_s = reached.sum(axis=0) / h.sum()
-        self._chord_slip = np.ascontiguousarray(self._slip - np.outer(h, drift_m_per_s) / C)
-        self._start_offset = np.zeros((t.size, 3))
-        np.cumsum(reached - np.outer(h, drift_m_per_s), axis=0, out=self._start_offset[1:])
-        self._breaks = breaks
-        self._interval_of = interval_of.astype(np.int64)
-        self._knots = np.ascontiguousarray(t)
-        self._knot_r = np.ascontiguousarray(position_m)
-        self._u_coef = np.ascontiguousarray(u_coef)
-        self._path = np.ascontiguousarray(path)
+    def _adopt(self, group: _Group, g: int) -> None:
+        """Take motion g of `group` (views of its arrays)."""
+        self._record = tuple(field[g] if per else field
+                             for field, per in zip(group.record, _PER_MOTION, strict=True))
+        self._breaks = group.record[1]
+        if group.raw_slip_s is not None:
+            self.raw_slip_s = group.raw_slip_s[g]
+            self.chord_m = group.chord_m[g]
+            self.integral_m = group.integral_m[g]
 
     # ------------------------------------------------------------------ evaluation
     def evaluate(self, t_s):
@@ -225,38 +164,22 @@ class Motion:
         positions are rounded: ref + displacement may differ from position_m by it). On the
         ballistic extensions the reference is the track's end sample."""
         t_s = np.ascontiguousarray(np.atleast_1d(np.asarray(t_s, dtype=float)))
-        pos = np.empty((t_s.size, 3))
-        beta = np.empty((t_s.size, 3))
-        inv_g2 = np.empty(t_s.size)
-        beta_dot = np.empty((t_s.size, 3))
-        ref_t = np.empty(t_s.size)
-        ref_r = np.empty((t_s.size, 3))
-        disp = np.empty((t_s.size, 3))
-        kernels.evaluate_state(*self.record, t_s, pos, beta, inv_g2, beta_dot, ref_t, ref_r,
-                               disp)
-        return pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp
+        out = state_arrays(t_s.size)
+        kernels.evaluate_state(*self.record, t_s, *out)
+        return out
 
     @property
     def record(self) -> tuple:
         """The motion as the compiled kernels take it (`lagfield.kernels.motion`):
         (has_momentum, breaks, coef, interval_of, knots, knot_r, slip_s, chord_slip_s,
         u_coef, path_cheb, start_offset, ends_r, ends_beta, ends_inv_g2)."""
-        ends = (self._ends_r, self._ends_beta, self._ends_inv_g2)
-        if self.has_momentum:
-            return (True, self._breaks, _NO_PIECES, self._interval_of, self._knots,
-                    self._knot_r, self._slip, self._chord_slip, self._u_coef, self._path,
-                    self._start_offset, *ends)
-        return (False, self._breaks, self._coef, _NO_INTERVALS, _NO_TIMES, _NO_ROWS,
-                _NO_ROWS, _NO_ROWS, _NO_PIECES, _NO_PIECES, _NO_ROWS, *ends)
+        return self._record
 
     # ------------------------------------------------------------------ checks
     def check_speed(self) -> None:
         """Raise MotionError where the reconstructed speed reaches c (never clamped):
         probed SPEED_CHECKS_PER_INTERVAL times per interval between samples."""
-        t = self.track.t_s
-        fractions = np.linspace(0.0, 1.0, SPEED_CHECKS_PER_INTERVAL, endpoint=False)
-        probe = (t[:-1, None] + np.diff(t)[:, None] * fractions).ravel()
-        probe = np.append(probe, t[-1])
+        probe = speed_probes(self.track.t_s)
         _, beta, inv_g2, _ = self.evaluate(probe)
         speed = np.sqrt(np.einsum("ij,ij->i", beta, beta))
         bad = np.flatnonzero(~(inv_g2 > 0.0) | ~(speed < 1.0))
@@ -281,15 +204,271 @@ def checked_motion(track: Track, resolution_s: float, *, path=None, **options) -
     """Motion(track, **options) after `check_slip` at the run's resolution and
     `check_speed`, its SlipReport kept as `motion.slip`; a MotionError names the track
     file `path` when given."""
+    return checked_motions([track], resolution_s, path=path, **options)[0]
+
+
+def build_motions(tracks, *, degree: int = 5, extend: str = "ballistic",
+                  smoothing_m: float = 0.0, u_offset_s: float | None = None) -> list[Motion]:
+    """[Motion(track, ...) for track in tracks], the same to the bit, built together: the
+    tracks sampled at the same times (and of the same kind and u_offset) share one spline
+    fit with all their coordinates as its right-hand side, and every further step is
+    vectorised over their pieces. The MotionError raised is that of the first track that
+    fails alone."""
+    motions, _, failures = _build_chunk(list(tracks), degree, extend, smoothing_m, u_offset_s)
+    if failures:
+        raise failures[min(failures)]
+    return motions
+
+
+def checked_motions(tracks, resolution_s: float, *, path=None, **options) -> list[Motion]:
+    """[checked_motion(track, resolution_s, path=path, **options) for track in tracks], the
+    same motions, reports and first error, built as by `build_motions` and checked
+    together; a track whose vectorised checks come near a limit (CHECK_MARGIN,
+    SPEED_MARGIN) is checked alone by `check_slip` and `Motion.check_speed`."""
+    options.setdefault("degree", 5)
+    options.setdefault("extend", "ballistic")
+    options.setdefault("smoothing_m", 0.0)
+    options.setdefault("u_offset_s", None)
+    motions, groups, failures = _build_chunk(list(tracks), **options)
+    suspects = set(failures)
+    for group in groups:
+        flagged = group.speed_suspects()
+        if group.raw_slip_s is not None:
+            reports, odd = slip_reports(group, resolution_s)
+            flagged |= odd
+            for motion, report in zip(group.motions, reports, strict=True):
+                motion.slip = report
+        suspects.update(group.indices[flagged].tolist())
+    for i in sorted(suspects):
+        try:
+            if i in failures:
+                raise failures[i]
+            motions[i].slip = check_slip(motions[i], resolution_s)
+            motions[i].check_speed()
+        except MotionError as error:
+            if path is None:
+                raise
+            raise MotionError(f"file {path}, {error}") from None
+    return motions
+
+
+def state_arrays(*shape: int) -> tuple:
+    """Empty outputs of the motion kernels for times of `shape`: (pos (…, 3), beta (…, 3),
+    inv_g2 (…), beta_dot (…, 3), ref_t (…), ref_r (…, 3), disp (…, 3))."""
+    rows = (*shape, 3)
+    return (np.empty(rows), np.empty(rows), np.empty(shape), np.empty(rows), np.empty(shape),
+            np.empty(rows), np.empty(rows))
+
+
+def speed_probes(t_s: np.ndarray) -> np.ndarray:
+    """The times `Motion.check_speed` looks at: SPEED_CHECKS_PER_INTERVAL per interval
+    between samples and the last sample."""
+    fractions = np.linspace(0.0, 1.0, SPEED_CHECKS_PER_INTERVAL, endpoint=False)
+    probe = (t_s[:-1, None] + np.diff(t_s)[:, None] * fractions).ravel()
+    return np.append(probe, t_s[-1])
+
+
+def _check_degree(degree: int) -> None:
+    if degree not in (3, 5):
+        raise ValueError(f"spline degree must be 3 or 5, not {degree}")
+
+
+# ---------------------------------------------------------------------------- groups
+@dataclasses.dataclass
+class _Group:
+    """Motions built together from tracks sampled at the same times t_s: their record with
+    a leading motion axis on the per-motion arrays (`lagfield.kernels.motion`), their
+    places in the chunk (indices), and with momenta the slips (G, n−1, 3) of `Motion`."""
+
+    motions: list
+    indices: np.ndarray
+    t_s: np.ndarray
+    record: tuple
+    raw_slip_s: np.ndarray | None = None
+    chord_m: np.ndarray | None = None
+    integral_m: np.ndarray | None = None
+
+    def evaluate(self, t_s: np.ndarray) -> tuple:
+        """`Motion.evaluate_referenced` of every motion at the times t_s (K,): (G, K, …)."""
+        out = state_arrays(len(self.motions), t_s.size)
+        kernels.evaluate_states(*self.record, t_s, *out)
+        return out
+
+    def speed_suspects(self) -> np.ndarray:
+        """(G,) True for the motions whose speed may reach c at the probes of
+        `Motion.check_speed`."""
+        out = np.empty(len(self.motions), dtype=np.bool_)
+        kernels.speed_suspects(*self.record, speed_probes(self.t_s), SPEED_MARGIN, out)
+        return out
+
+
+def _build_chunk(tracks, degree, extend, smoothing_m, u_offset_s):
+    """(motions, groups, failures {index: MotionError}) of a list of tracks: tracks with
+    the same sample times, kind, degree and u_offset built together, in batches of at
+    most BATCH_TRACKS tracks and BATCH_SAMPLES samples; a batch that fails is built again
+    one by one, so that each track gets the error it gets alone."""
+    _check_degree(degree)
+    motions, times, failures, keyed = [], [], {}, {}
+    for i, track in enumerate(tracks):
+        motion = Motion.__new__(Motion)
+        motions.append(motion)
+        try:
+            t = motion._describe(track, degree, extend, u_offset_s)
+        except MotionError as error:
+            failures[i] = error
+            times.append(None)
+            continue
+        times.append(t)
+        alone = not motion.has_momentum and smoothing_m > 0.0  # a fit of its own
+        key = i if alone else (motion.has_momentum, motion.degree_used, motion.u_offset_s,
+                               t.tobytes())
+        keyed.setdefault(key, []).append(i)
+    groups = []
+    for members in keyed.values():
+        size = max(1, min(BATCH_TRACKS, BATCH_SAMPLES // times[members[0]].size))
+        for start in range(0, len(members), size):
+            batch = np.array(members[start:start + size], dtype=np.int64)
+            groups += _build_batch(motions, times, batch, smoothing_m, failures)
+    return motions, groups, failures
+
+
+def _build_batch(motions, times, batch, smoothing_m, failures) -> list[_Group]:
     try:
-        motion = Motion(track, **options)
-        motion.slip = check_slip(motion, resolution_s)
-        motion.check_speed()
+        return _build_group([motions[i] for i in batch], batch, times[batch[0]], smoothing_m)
     except MotionError as error:
-        if path is None:
-            raise
-        raise MotionError(f"file {path}, {error}") from None
-    return motion
+        if batch.size == 1:
+            failures[int(batch[0])] = error
+            return []
+    return [group for i in batch
+            for group in _build_batch(motions, times, batch[i == batch], smoothing_m, failures)]
+
+
+def _build_group(motions, indices, t, smoothing_m) -> list[_Group]:
+    """Build `motions` (described, tracks sampled at the times t) together."""
+    position = np.stack([np.asarray(m.track.position_m, dtype=float) for m in motions])
+    if not motions[0].has_momentum:
+        return [_positions_group(motions, indices, t, position, smoothing_m)]
+    if smoothing_m > 0.0:
+        raise MotionError(
+            f"particle {motions[0].particle}: [motion] smoothing is for positions-only "
+            "tracks; with ux, uy, uz the velocity comes from the momenta and the "
+            "positions are its integral through every sample. Remove [motion] "
+            "smoothing, or map the momentum columns away to smooth noisy positions")
+    u = np.stack([np.asarray(m.track.u, dtype=float) for m in motions])
+    with np.errstate(over="ignore", invalid="ignore"):  # absurd u: check_slip says so
+        return _momenta_groups(motions, indices, t, position, u)
+
+
+def _finish(motions, indices, t, record, **slips) -> _Group:
+    """The group of `record` (ends still to fill): its ends evaluated, its motions set."""
+    group = _Group(motions, indices, t, record, **slips)
+    pos, beta, inv_g2 = group.evaluate(np.array([t[0], t[-1]]))[:3]
+    record[-3][...], record[-2][...], record[-1][...] = pos, beta, inv_g2
+    for g, motion in enumerate(motions):
+        motion._adopt(group, g)
+    return group
+
+
+def _ends(n_motions: int) -> tuple:
+    """Room for the ends of a group's record: ends_r, ends_beta, ends_inv_g2."""
+    return np.zeros((n_motions, 2, 3)), np.zeros((n_motions, 2, 3)), np.ones((n_motions, 2))
+
+
+def _positions_group(motions, indices, t, position, smoothing_m) -> _Group:
+    k = motions[0].degree_used
+    tau = t - t[0]
+    if smoothing_m > 0.0:  # one track
+        s = t.size * smoothing_m**2
+        splines = [interpolate.make_splrep(tau, position[0, :, i], k=k, s=s)
+                   for i in range(3)]
+    else:
+        splines = [interpolate.make_interp_spline(tau, np.moveaxis(position, 0, 1), k=k)]
+    breaks = breakpoints(t, np.concatenate([t[0] + s.t for s in splines]))
+    start = breaks[:-1] - t[0]
+    coef = [taylor_coefficients(s, start, k) for s in splines]
+    # (P, k+1, G, 3) from one spline of every coordinate, (P, k+1) from each of three
+    coef = np.moveaxis(coef[0], 2, 0) if len(coef) == 1 else np.stack(coef, axis=-1)[None]
+    rows = np.zeros((len(motions), 0, 3))
+    pieces = np.zeros((len(motions), 0, 1, 3))
+    record = (False, breaks, np.ascontiguousarray(coef), _NO_INTERVALS, _NO_TIMES, rows, rows,
+              rows, pieces, pieces, rows, *_ends(len(motions)))
+    return _finish(motions, indices, t, record)
+
+
+def _momenta_groups(motions, indices, t, position, u) -> list[_Group]:
+    """Motions with momenta: a group per count of Chebyshev nodes their paths need."""
+    first = motions[0]
+    k = first.degree_used
+    offset = first.u_offset_s
+    t_u = t + offset  # when the momenta were sampled
+    first_gap = t_u[0] - t[0]
+    last_gap = t[-1] - t_u[-1]
+    if max(first_gap / (t_u[1] - t_u[0]), last_gap / (t_u[-1] - t_u[-2])) > 1.0 + 1e-9:
+        raise MotionError(
+            f"particle {first.particle}: u_offset = {offset:.6g} s puts the momenta more "
+            "than one sample interval away from the positions at the track's "
+            f"{'start' if first_gap > last_gap else 'end'}; u_offset should be a "
+            "fraction of the step between samples (e.g. minus half a step for a "
+            "leapfrog pusher)")
+    spline = interpolate.make_interp_spline(t_u - t[0], np.moveaxis(u, 0, 1), k=k)
+    breaks = breakpoints(t, t[0] + spline.t)
+    interval_of = np.clip(np.searchsorted(t, breaks[:-1], side="right") - 1, 0,
+                          t.size - 2).astype(np.int64)
+    u_coef = np.ascontiguousarray(
+        np.moveaxis(taylor_coefficients(spline, breaks[:-1] - t[0], k), 2, 0))
+    groups = []
+    for members, path, total, fit_error in path_series(u_coef, np.diff(breaks)):
+        every = members.size == len(motions)
+        groups.append(_momenta_group(
+            [motions[i] for i in members], indices[members], t, breaks, interval_of,
+            position if every else position[members], u_coef if every else u_coef[members],
+            path, total, fit_error))
+    return groups
+
+
+def _momenta_group(motions, indices, t, breaks, interval_of, position, u_coef, path, total,
+                   fit_error) -> _Group:
+    """The slips and offsets of motions with momenta (module docstring), all (G, …)."""
+    n_motions = len(motions)
+    width = np.diff(breaks)
+    # pieces of one interval: each starts where the previous one ended
+    first_piece = np.searchsorted(interval_of, interval_of, side="left")
+    rank = np.arange(interval_of.size) - first_piece
+    for r in range(1, int(rank.max()) + 1):
+        later = np.flatnonzero(rank == r)
+        path[:, later, 0, :] += path[:, later - 1].sum(axis=2)  # its value at x = 1
+    every = (slice(None), interval_of)
+    integral = np.zeros((n_motions, t.size - 1, 3))
+    np.add.at(integral, every, total)
+    chord = np.diff(position, axis=1)
+    slip = (chord - integral) / C
+    size_r = np.maximum(np.linalg.norm(position[:, :-1], axis=2),
+                        np.linalg.norm(position[:, 1:], axis=2))
+    size_t = np.maximum(np.abs(t[:-1]), np.abs(t[1:]))
+    path_length = np.zeros((n_motions, t.size - 1))
+    np.add.at(path_length, every, np.linalg.norm(total, axis=2))
+    fit = np.zeros((n_motions, t.size - 1))
+    np.add.at(fit, every, fit_error * width)
+    floor_s = ROUNDING_ULPS * EPS * (size_r / C + size_t + path_length / C) + fit
+    resolved = np.linalg.norm(slip, axis=2) > floor_s
+    used = np.ascontiguousarray(np.where(resolved[..., None], slip, 0.0))
+    # a slip at the rounding floor is left out of the velocity (uniform motion stays
+    # exactly uniform), so interval i ends a rounding error away from sample i+1; each
+    # interval starts at the offset from its sample that keeps the motion continuous
+    # (its light times too, at γ ≳ 10⁴ where 1e-13 m is visible). The steady part of
+    # those errors (β rounded the same way in every interval) would add up to a drift
+    # from the samples: the path, not the velocity, carries it as a constant rate
+    reached = integral + C * used - chord
+    h = np.diff(t)
+    drift = h[None, :, None] * (reached.sum(axis=1) / h.sum())[:, None, :]
+    chord_slip = np.ascontiguousarray(used - drift / C)
+    start_offset = np.zeros((n_motions, t.size, 3))
+    np.cumsum(reached - drift, axis=1, out=start_offset[:, 1:])
+    record = (True, breaks, np.zeros((n_motions, 0, 1, 3)), interval_of, t,
+              np.ascontiguousarray(position), used, chord_slip, u_coef, path, start_offset,
+              *_ends(n_motions))
+    return _finish(motions, indices, t, record, raw_slip_s=slip, chord_m=chord,
+                   integral_m=integral)
 
 
 # ---------------------------------------------------------------------------- pieces
@@ -309,38 +488,39 @@ def taylor_coefficients(spline, start, k: int) -> np.ndarray:
     return np.stack([spline(start, nu=m) / math.factorial(m) for m in range(k + 1)], axis=1)
 
 
-def polynomial(coef: np.ndarray, sigma: np.ndarray) -> np.ndarray:
-    """Σ_m coef[p, m, :] σ[p, j]^m, shape (P, J, 3)."""
-    value = np.zeros(sigma.shape + coef.shape[2:])
-    for m in range(coef.shape[1] - 1, -1, -1):
-        value = value * sigma[..., None] + coef[:, None, m, :]
-    return value
-
-
 def velocity_of(u: np.ndarray) -> np.ndarray:
     """β = u/√(1 + u²) along the last axis."""
     return u / np.sqrt(1.0 + np.einsum("...i,...i->...", u, u))[..., None]
 
 
-def path_series(u_coef: np.ndarray, width_s: np.ndarray):
-    """Chebyshev series (P, M+1, 3), in x = 2σ/w − 1, of c·∫β_u dt′ from each piece's start;
-    the piece totals (P, 3) m; and the fit's largest error of β_u per piece (P,)."""
+def path_series(u_coef: np.ndarray, width_s: np.ndarray) -> list[tuple]:
+    """Chebyshev series, in x = 2σ/w − 1, of c·∫β_u dt′ from each piece's start, of the
+    motions of a group: u_coef (G, P, k+1, 3), width_s (P,). Each motion gets the fewest
+    nodes of CHEBYSHEV_NODES that fit β_u on all its pieces within FIT_TOLERANCE of its
+    size. Returns, per node count used, (members (g,) of the group, series (g, P, M+1, 3)
+    m, piece totals (g, P, 3) m, largest error of the fit of β_u per piece (g, P))."""
+    fits = []
+    pending = np.arange(u_coef.shape[0])
     for nodes in CHEBYSHEV_NODES:
+        coef = u_coef if pending.size == u_coef.shape[0] else u_coef[pending]
+        path = np.empty((coef.shape[0], coef.shape[1], nodes + 1, 3))
+        error = np.empty(coef.shape[:2])
+        size = np.empty(coef.shape[:2])
         angle = np.pi * (np.arange(nodes) + 0.5) / nodes
-        beta = velocity_of(polynomial(u_coef, 0.5 * (np.cos(angle)[None, :] + 1.0)
-                                      * width_s[:, None]))
-        basis = np.cos(np.outer(angle, np.arange(nodes))) * (2.0 / nodes)
-        basis[:, 0] *= 0.5
-        series = np.einsum("jm,pjc->pmc", basis, beta)
-        check = np.cos(np.pi * np.arange(nodes + 1) / nodes)  # between the nodes, and the ends
-        exact = velocity_of(polynomial(u_coef, 0.5 * (check[None, :] + 1.0) * width_s[:, None]))
-        fitted = np.einsum("jm,pmc->pjc", chebyshev.chebvander(check, nodes - 1), series)
-        error = np.abs(fitted - exact).max(axis=(1, 2))
-        size = np.abs(exact).max(axis=(1, 2))
-        if np.all(error <= FIT_TOLERANCE * size):
+        basis = np.cos(np.outer(np.arange(nodes), angle)) * (2.0 / nodes)
+        basis[0] *= 0.5
+        check = np.cos(np.pi * np.arange(nodes + 1) / nodes)  # between the nodes, and ends
+        kernels.chebyshev_fit(coef, width_s, np.cos(angle), basis, check,
+                              chebyshev.chebvander(check, nodes - 1), path, error, size)
+        good = np.all(error <= FIT_TOLERANCE * size, axis=1) | (nodes == CHEBYSHEV_NODES[-1])
+        if good.any():
+            if not good.all():
+                path, error = path[good], error[good]
+            fits.append((pending[good], path, path.sum(axis=2), error))
+        pending = pending[~good]
+        if not pending.size:
             break
-    path = chebyshev.chebint(series, lbnd=-1.0, axis=1) * (0.5 * C * width_s)[:, None, None]
-    return path, path.sum(axis=1), error
+    return fits
 
 
 # ---------------------------------------------------------------------------- slip
@@ -385,6 +565,40 @@ def slip_report(motion: Motion) -> SlipReport | None:
     explained = along * along / (weight * total) if weight > 0.0 and total > 0.0 else 0.0
     return SlipReport(motion.particle, t, np.linalg.norm(motion.raw_slip_s, axis=1),
                       speed_ratio, offset, explained, float(np.median(np.diff(t))))
+
+
+def slip_reports(group: _Group, resolution_s: float) -> tuple[list[SlipReport], np.ndarray]:
+    """`slip_report` of every motion of a group with momenta, vectorised, and (G,) True
+    for those near a limit of `check_slip` (CHECK_MARGIN), to be checked alone."""
+    chord = np.linalg.norm(group.chord_m, axis=2).sum(axis=1)
+    integral = np.linalg.norm(group.integral_m, axis=2).sum(axis=1)
+    change = np.empty(group.chord_m.shape)  # Δβ_i; δβ is zero at the samples
+    kernels.velocity_changes(*group.record, group.t_s, change)
+    n_motions = change.shape[0]
+    weight = (change * change).reshape(n_motions, -1).sum(axis=1)
+    along = (group.raw_slip_s * change).reshape(n_motions, -1).sum(axis=1)
+    total = (group.raw_slip_s**2).reshape(n_motions, -1).sum(axis=1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(integral > 0.0, chord / integral,
+                         np.where(chord > 0.0, math.inf, math.nan))
+        offset = np.where(weight > 0.0, -along / weight, 0.0)
+        explained = np.where((weight > 0.0) & (total > 0.0), along * along / (weight * total),
+                             0.0)
+    slip_s = np.linalg.norm(group.raw_slip_s, axis=2)
+    step_s = float(np.median(np.diff(group.t_s)))
+    reports = [SlipReport(motion.particle, np.asarray(motion.track.t_s, dtype=float),
+                          slip_s[g], float(ratio[g]), float(offset[g]), float(explained[g]),
+                          step_s)
+               for g, motion in enumerate(group.motions)]
+    near = 1.0 - CHECK_MARGIN
+    fraction = slip_s.max(axis=1) / resolution_s
+    with np.errstate(invalid="ignore"):
+        odd = ~(np.isnan(ratio) | ((ratio * near >= 1.0 / UNIT_RATIO_LIMIT)
+                                    & (ratio <= UNIT_RATIO_LIMIT * near)))
+        odd |= ~(fraction <= SLIP_FRACTION * near)
+        odd |= ((np.abs(offset) / step_s > OFFSET_FRACTION * near) & (explained > 0.5 * near)
+                & (fraction > VISIBLE_FRACTION * near))
+    return reports, odd
 
 
 def check_slip(motion: Motion, resolution_s: float) -> SlipReport | None:

@@ -1,5 +1,6 @@
 """Observer groups: named sets of points (a list, a plane grid or a sphere of directions),
-with the fixed direction and distance the far-field approximation uses."""
+and their Geometry: the points, or the fixed directions and distances the far-field
+approximation uses."""
 
 from __future__ import annotations
 
@@ -8,7 +9,33 @@ import dataclasses
 import numpy as np
 import pandas as pd
 
+from .constants import C
 from .errors import ObserverError
+
+
+@dataclasses.dataclass(frozen=True, eq=False)
+class Geometry:
+    """How a group's points see a source, built once per group and run. Near field (far
+    False): targets (P, 3) are the points, m. Far field: targets are the unit directions
+    from origin_m (3,) to the points, distance_m (P,) their distances from it."""
+
+    far: bool
+    targets: np.ndarray
+    origin_m: np.ndarray
+    distance_m: np.ndarray | None = None
+
+    def light_delay_s(self, positions_m) -> np.ndarray:
+        """(M, P) time light takes from positions_m (M, 3) to each point (far field: R₀
+        minus the position's projection on the direction, over c)."""
+        if self.far:
+            projected = (positions_m - self.origin_m) @ self.targets.T
+            return (self.distance_m[None, :] - projected) / C
+        offset = self.targets[None, :, :] - positions_m[:, None, :]
+        return np.sqrt(np.einsum("mpi,mpi->mp", offset, offset)) / C
+
+    def origins_m(self) -> np.ndarray:
+        """origin_m repeated per point (P, 3), contiguous, as the far-field kernel takes it."""
+        return np.ascontiguousarray(np.broadcast_to(self.origin_m, self.targets.shape))
 
 
 @dataclasses.dataclass(frozen=True, eq=False)
@@ -37,6 +64,14 @@ class ObserverGroup:
                                 "approximation needs a point away from the origin it is seen "
                                 "from")
         return offset / distance[:, None], distance
+
+    def geometry(self, far_field: bool) -> Geometry:
+        """The group as a source sees it: its points, or with far_field its directions and
+        distances from origin_m."""
+        if not far_field:
+            return Geometry(False, self.points_m, self.origin_m)
+        directions, distance = self.far_geometry()
+        return Geometry(True, directions, self.origin_m, distance)
 
     def table(self) -> pd.DataFrame:
         """SPEC's observers table for this group."""

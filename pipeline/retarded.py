@@ -1,4 +1,5 @@
-"""The retarded-time condition t = t′ + |r_obs − r(t′)|/c, solved for t′.
+"""The retarded-time condition t = t′ + |r_obs − r(t′)|/c, solved for t′, and the source
+span of a particle; the solves are the compiled kernels of `lagfield.kernels.retarded`.
 
 g(t′) = t′ + R(t′)/c − t is increasing (g′ = κ = 1 − n·β > 0 for |β| < 1), so a root is
 bracketed by t′ = t (where g = R/c ≥ 0) and a point found by stepping back in growing
@@ -11,10 +12,11 @@ search does not assume the root is inside the track's span.
 from __future__ import annotations
 
 import numpy as np
-from scipy import constants
 
-C = constants.c
-MAX_ITERATIONS = 400
+from .kernels import retarded as kernels
+
+MAX_ITERATIONS = kernels.MAX_ITERATIONS
+_NO_DISTANCES = np.zeros(0)
 
 
 def retarded_time(motion, observer_m, t_obs_s, *, far_direction=None, far_distance_m=None,
@@ -24,62 +26,34 @@ def retarded_time(motion, observer_m, t_obs_s, *, far_direction=None, far_distan
     or (K, 3)) and `far_distance_m` R₀ the far-field condition
     t = t′ + (R₀ − n·(r(t′) − origin))/c is solved instead."""
     t_obs = np.atleast_1d(np.asarray(t_obs_s, dtype=float))
-    observer = None if observer_m is None else np.asarray(observer_m, dtype=float)
-    origin = np.asarray(origin_m, dtype=float)
+    far = far_direction is not None
+    target = np.asarray(far_direction if far else observer_m, dtype=float)
+    distance = np.asarray(far_distance_m if far else 0.0, dtype=float)
+    count = np.broadcast_shapes(t_obs.shape, target.shape[:-1], distance.shape)
+    t_obs = np.ascontiguousarray(np.broadcast_to(t_obs, count))
+    targets = np.ascontiguousarray(np.broadcast_to(target, count + (3,)))
+    distances = np.ascontiguousarray(np.broadcast_to(distance, count))
+    out = np.empty(count)
+    kernels.retarded_fields(targets, distances, np.asarray(origin_m, dtype=float), far, t_obs,
+                            out, *motion.record)
+    return out
 
-    def delay_and_slope(t_src):
-        r, beta, inv_g2, _ = motion.evaluate(t_src)
-        if far_direction is None:
-            d = observer - r
-            distance = np.sqrt(np.einsum("ij,ij->i", d, d))
-            n = d / distance[:, None]
-            delay = distance / C
-        else:
-            n = np.broadcast_to(np.asarray(far_direction, dtype=float), r.shape)
-            delay = (far_distance_m - np.einsum("ij,ij->i", n, r - origin)) / C
-        nb = np.einsum("ij,ij->i", n, beta)
-        cross = np.cross(n, beta)
-        kappa = (inv_g2 + np.einsum("ij,ij->i", cross, cross)) / (1.0 + nb)
-        return delay, kappa
 
-    high = t_obs.copy()
-    delay, _ = delay_and_slope(high)
-    g_high = delay  # g(t) = R/c >= 0 (near field); the far-field delay may be negative
-    reach = np.maximum(np.abs(delay), 1e-30)
-    for _ in range(MAX_ITERATIONS):
-        below = g_high < 0.0
-        if not below.any():
-            break
-        high = np.where(below, high + reach, high)
-        g_high = np.where(below, high + delay_and_slope(high)[0] - t_obs, g_high)
-        reach = np.where(below, reach * 4.0, reach)
-    reach = np.maximum(np.abs(delay), 1e-30)
-    low = high - reach
-    for _ in range(MAX_ITERATIONS):
-        g_low = low + delay_and_slope(low)[0] - t_obs
-        above = g_low > 0.0
-        if not above.any():
-            break
-        reach = np.where(above, reach * 4.0, reach)
-        high = np.where(above, low, high)
-        g_high = np.where(above, g_low, g_high)
-        low = np.where(above, high - reach, low)
-    else:
-        raise RuntimeError("retarded time: no bracket found")
-    x = np.where(g_high == 0.0, high, low)
-    done = g_high == 0.0
-    for _ in range(MAX_ITERATIONS):
-        delay, kappa = delay_and_slope(x)
-        g = x + delay - t_obs
-        low = np.where(g <= 0.0, x, low)
-        high = np.where(g >= 0.0, x, high)
-        newton = x - g / kappa
-        inside = (newton > low) & (newton < high)
-        x_new = np.where(inside, newton, 0.5 * (low + high))
-        tolerance = 4.0 * np.finfo(float).eps * np.maximum(np.abs(x), np.abs(t_obs))
-        converged = (np.abs(g) <= tolerance) | (high - low <= tolerance)
-        done = done | converged
-        if done.all():
-            return x
-        x = np.where(done, x, x_new)
-    return x
+def span_times(motion, geometry, edge_lo, edge_hi, extend: str):
+    """Per point of the group, the source times (lo (P,), hi (P,)) whose light reaches it at
+    observer times edge_lo, edge_hi ((P,) or scalars): the closed form on the ballistic
+    extensions, the solver where that root lies within the sampled track; with
+    extend = "none" clipped to the track's span. geometry: the group's
+    `observers.Geometry` (its targets are the points, or the far-field directions)."""
+    count = geometry.targets.shape[0]
+    distances = geometry.distance_m if geometry.far else _NO_DISTANCES
+    lo = np.empty(count)
+    hi = np.empty(count)
+    kernels.source_span_fields(
+        np.ascontiguousarray(geometry.targets, dtype=float),
+        np.ascontiguousarray(distances, dtype=float),
+        np.ascontiguousarray(geometry.origin_m, dtype=float), bool(geometry.far),
+        np.ascontiguousarray(np.broadcast_to(np.asarray(edge_lo, dtype=float), count)),
+        np.ascontiguousarray(np.broadcast_to(np.asarray(edge_hi, dtype=float), count)),
+        extend == "none", lo, hi, *motion.record)
+    return lo, hi

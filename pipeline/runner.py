@@ -141,6 +141,7 @@ def run(source, *, base_dir=None, overwrite: bool = False, write: bool = True,
             results = compute_distributed(client, config.tracks.path, read_options,
                                           particle_ids, groups, settings, spectrum=spectrum,
                                           windows=windows, chunk=config.compute.chunk,
+                                          n_rows=tracks.n_rows,
                                           progress=per_chunk)  # n particles of a chunk
     timings["compute_s"] = time.perf_counter() - t0
     observers = pd.concat([group.table() for group in groups], ignore_index=True)

@@ -20,18 +20,16 @@ from __future__ import annotations
 
 import collections
 import dataclasses
-import math
 
 import numpy as np
-from scipy import constants
 
 from . import transforms
+from .constants import COULOMB, EPS0_C
 from .kernels import pointwise, quadrature
 from .tables import SPECTRUM_COLUMNS, spectra_table
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
 SPECTRUM_BUFFER_SAMPLES = 1_000_000  # source samples (~100 bytes each) held before a transform
-COULOMB = 1.0 / (4.0 * math.pi * constants.epsilon_0)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -101,19 +99,28 @@ def coherent_plan(counts, spans_s, together_span_s, frequencies_hz, model=transf
 
 def fluence(spectrum: np.ndarray) -> np.ndarray:
     """F(f) = 2 ε0 c |Ẽ(f)|² summed over components, J/(m²·Hz)."""
-    return 2.0 * constants.epsilon_0 * constants.c * np.sum(np.abs(spectrum) ** 2, axis=-1)
+    return 2.0 * EPS0_C * np.sum(np.abs(spectrum) ** 2, axis=-1)
+
+
+def observed_fields(t, state, geometry, point: int):
+    """(t_obs (N,), E per q/(4πε0) (N, 3), κ (N,)) of the source samples (t, state = (pos,
+    beta, inv_g2, beta_dot)) at one point of an observers.Geometry."""
+    t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
+    pointwise.point_fields(t, state, point, geometry.far, geometry.targets, geometry.distance_m,
+                           geometry.origin_m, t_obs, e, kappa)
+    return t_obs, e, kappa
 
 
 class SpectrumAccumulator:
     """Spectra of one group's points, to which particles' source samples are added.
     `transforms` counts the transforms made by route ("direct", "nufft")."""
 
-    def __init__(self, group, start_s, stop_s, settings: SpectrumSettings, far=None):
+    def __init__(self, group, start_s, stop_s, settings: SpectrumSettings, geometry=None):
         self.group = group
         self.start_s = start_s
         self.stop_s = stop_s
         self.settings = settings
-        self.far = far
+        self.geometry = group.geometry(False) if geometry is None else geometry
         n_f = settings.frequencies_hz.size
         self._spectrum = np.zeros((group.n_points, n_f, 3), dtype=complex)
         self.fluence = np.zeros((group.n_points, n_f))
@@ -172,8 +179,7 @@ class SpectrumAccumulator:
 
     def _terms(self, t, state, scale, p):
         """(t_obs, values (n, 6)) of one particle's samples at point p, fields × scale."""
-        t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
-        pointwise.point_fields(t, state, p, self.group.points_m, self.far, t_obs, e, kappa)
+        t_obs, e, _ = observed_fields(t, state, self.geometry, p)
         return quadrature_terms(t_obs, e * scale, self.start_s[p], self.stop_s[p],
                                 self.settings.frequencies_hz.max(), self.settings.taper)
 

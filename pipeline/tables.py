@@ -1,7 +1,8 @@
-"""SPEC's fields and spectra tables, built column by column with numpy (one gather per
-group and one concatenate per column; no per-point frames, no per-row Python). The
-observer column is a pandas Categorical: Parquet stores it dictionary-encoded, CSV as
-plain strings."""
+"""SPEC's fields and spectra tables, built column by column with numpy: every float
+column is written once, straight from the engine's arrays into one preallocated block
+(rows of the block are columns; pandas keeps it without a copy), with no per-point frames,
+no per-row Python and no intermediate copies. The observer column is a pandas
+Categorical: Parquet stores it dictionary-encoded, CSV as plain strings."""
 
 from __future__ import annotations
 
@@ -15,51 +16,72 @@ SPECTRUM_COLUMNS = ("Ex_re", "Ex_im", "Ey_re", "Ey_im", "Ez_re", "Ez_im")
 def observer_column(names, counts) -> pd.Categorical:
     """Group names[i] repeated counts[i] times, as a Categorical of the names in order."""
     categories = list(dict.fromkeys(names))
-    codes = np.repeat([categories.index(name) for name in names],
-                      np.asarray(counts, dtype=np.int64)).astype(np.int32)
+    codes = np.repeat(np.array([categories.index(name) for name in names], dtype=np.int32),
+                      np.asarray(counts, dtype=np.int64))
     return pd.Categorical.from_codes(codes, categories=categories)
+
+
+def _assemble(names, counts, block, floats, others) -> pd.DataFrame:
+    """The table: observer, then the columns in the order of `others` (name -> array or
+    None for a row of `block`) whose float ones are the rows of `block`, named `floats`."""
+    table = pd.DataFrame(block.T, columns=list(floats), copy=False)
+    table.insert(0, "observer", observer_column(names, counts))
+    for position, (key, values) in enumerate(others.items(), start=1):
+        if values is not None:
+            table.insert(position, key, values)
+    return table
 
 
 def frame(names, counts, parts) -> pd.DataFrame:
     """A table of groups `names` with counts[i] rows each: observer, then the columns of
     `parts` (one dict {column: array} per group, in the same order), filled group after
-    group into one preallocated block per dtype (pandas keeps it without a copy); a
-    column some groups lack is NaN in their rows."""
+    group into one preallocated array per column; a float column some groups lack is NaN
+    in their rows."""
     keys = list(dict.fromkeys(key for part in parts for key in part))
     dtypes = {key: next(np.asarray(part[key]).dtype for part in parts if key in part)
               for key in keys}
     floats = [key for key in keys if dtypes[key] == np.float64]
     ends = np.cumsum([0, *counts])
-    block = np.empty((len(floats), int(ends[-1])))  # rows of the block are columns
-    for row, key in enumerate(floats):
-        for part, start, stop in zip(parts, ends[:-1], ends[1:], strict=True):
-            block[row, start:stop] = part[key] if key in part else np.nan
-    table = pd.DataFrame(block.T, columns=floats, copy=False)
-    table.insert(0, "observer", observer_column(names, counts))
-    for key in keys:
-        if key not in floats:
-            table.insert(keys.index(key) + 1, key,
-                         np.concatenate([part[key] for part in parts]).astype(dtypes[key]))
-    return table
+    block = np.empty((len(floats), int(ends[-1])))
+    others = {key: None if key in floats else np.empty(int(ends[-1]), dtype=dtypes[key])
+              for key in keys}
+    for part, start, stop in zip(parts, ends[:-1], ends[1:], strict=True):
+        for key in keys:
+            out = block[floats.index(key)] if key in floats else others[key]
+            out[start:stop] = part[key] if key in part else np.nan
+    return _assemble(names, counts, block, floats, others)
 
 
-def field_columns(result) -> dict:
-    """{point, t, Ex … Bz} of one GroupFields, point by point (bins past n_bins dropped)."""
+def _fill_fields(result, block, points) -> None:
+    """Write one GroupFields into `block` (rows t, Ex … Bz) and `points`, point by point
+    (bins past n_bins dropped): one strided copy per run of points of equal length."""
     n_bins = np.asarray(result.n_bins, dtype=np.int64)
-    inside = np.arange(result.e_v_per_m.shape[1])[None, :] < n_bins[:, None]  # (P, bins)
-    bin_index = np.broadcast_to(np.arange(inside.shape[1], dtype=float), inside.shape)
-    columns = {"point": np.repeat(np.arange(n_bins.size, dtype=np.int64), n_bins),
-               "t": (result.start_s[:, None] + result.step_s * bin_index)[inside]}
-    for i, name in enumerate(FIELD_COLUMNS):
-        values = result.e_v_per_m if i < 3 else result.b_t
-        columns[name] = values[:, :, i % 3][inside]
-    return columns
+    start_s = np.asarray(result.start_s, dtype=np.float64)
+    bin_index = np.arange(int(n_bins.max(initial=0)), dtype=np.float64)
+    firsts = np.flatnonzero(np.r_[True, n_bins[1:] != n_bins[:-1]])  # runs of equal n_bins
+    row = 0
+    for p0, p1 in zip(firsts.tolist(), np.r_[firsts[1:], n_bins.size].tolist(), strict=True):
+        n = int(n_bins[p0])
+        stop = row + (p1 - p0) * n
+        shaped = block[:, row:stop].reshape(block.shape[0], p1 - p0, n)
+        np.add(start_s[p0:p1, None], result.step_s * bin_index[:n], out=shaped[0])
+        shaped[1:4] = result.e_v_per_m[p0:p1, :n].transpose(2, 0, 1)
+        shaped[4:7] = result.b_t[p0:p1, :n].transpose(2, 0, 1)
+        points[row:stop].reshape(p1 - p0, n)[...] = np.arange(p0, p1)[:, None]
+        row = stop
 
 
 def fields_table(results) -> pd.DataFrame:
     """SPEC's fields table of the engine's GroupFields."""
-    return frame([r.group.name for r in results], [int(np.sum(r.n_bins)) for r in results],
-                 [field_columns(r) for r in results])
+    counts = [int(np.sum(r.n_bins)) for r in results]
+    ends = np.cumsum([0, *counts])
+    floats = ("t", *FIELD_COLUMNS)
+    block = np.empty((len(floats), int(ends[-1])))
+    points = np.empty(int(ends[-1]), dtype=np.int64)
+    for result, start, stop in zip(results, ends[:-1], ends[1:], strict=True):
+        _fill_fields(result, block[:, start:stop], points[start:stop])
+    return _assemble([r.group.name for r in results], counts, block, floats,
+                     {"point": points})
 
 
 def spectra_table(accumulators) -> pd.DataFrame:

@@ -10,6 +10,7 @@ import lagfield
 from lagfield.tracks import CANONICAL_COLUMNS
 
 MAGIC = b"PAR1"
+BATCH_ROWS = 100_000  # rows read at once, however large the file's row groups
 
 
 def _wanted_columns(schema_names, options) -> list[str] | None:
@@ -72,10 +73,12 @@ class ParquetImporter:
                 if wanted is not None and not _may_hold(group, id_column, wanted):
                     first_row += group.num_rows
                     continue
-                frame = parquet_file.read_row_group(index, columns=columns).to_pandas()
-                frame.attrs["first_row"] = first_row
-                first_row += group.num_rows
-                yield frame
+                for batch in parquet_file.iter_batches(BATCH_ROWS, row_groups=[index],
+                                                       columns=columns):  # bounded memory
+                    frame = batch.to_pandas()
+                    frame.attrs["first_row"] = first_row
+                    first_row += len(frame)
+                    yield frame
 
 
 def _may_hold(row_group, id_column: str, particle_range) -> bool:

@@ -8,6 +8,8 @@ import signal
 import time
 from pathlib import Path
 
+import hypothesis
+import hypothesis.strategies as st
 import numpy as np
 import pytest
 from scipy import constants
@@ -19,7 +21,13 @@ from lagfield.spectra import SpectrumSettings
 from lagfield.tracks import read_tracks
 
 distributed = pytest.importorskip("dask.distributed")
-from lagfield.distributed import compute_distributed, connect  # noqa: E402
+from lagfield.distributed import (  # noqa: E402
+    MAX_TASK_ROWS,
+    TASKS_PER_WORKER,
+    compute_distributed,
+    connect,
+    default_chunk,
+)
 
 PICKUP = Path(__file__).resolve().parents[1] / "sample_data" / "pickup" / "tracks.parquet"
 READ = {"charge": -constants.e, "min_samples": 6}
@@ -45,10 +53,11 @@ def job():
     return tracks, ids, [group], settings, spectrum, windows
 
 
-def _distributed(client, job, progress=None):
+def _distributed(client, job, progress=None, chunk=8):
     tracks, ids, groups, settings, spectrum, windows = job
     return compute_distributed(client, PICKUP, READ, ids, groups, settings,
-                               spectrum=spectrum, windows=windows, chunk=8, progress=progress)
+                               spectrum=spectrum, windows=windows, chunk=chunk,
+                               progress=progress)
 
 
 def _arrays(results):
@@ -90,3 +99,29 @@ def test_unreachable_scheduler_is_a_clear_error():
     with pytest.raises(LagfieldError, match="cannot reach the Dask scheduler"):
         connect(scheduler="tcp://127.0.0.1:9")
     assert time.monotonic() - started < 30
+
+
+def test_default_chunk_gives_every_worker_several_tasks():
+    assert default_chunk(1000, 50_000, 2) == 125  # 8 tasks: 4 for each of 2 workers
+    assert default_chunk(1_000_000, 50_000_000, 2) == 20_000  # 1e6 rows a task at most
+    assert default_chunk(3, 150, 8) == 1
+
+
+@hypothesis.given(st.integers(1, 10**7), st.integers(1, 10**4), st.integers(1, 512))
+def test_default_chunk_balances_within_the_memory_bound(n_particles, samples, workers):
+    chunk = default_chunk(n_particles, n_particles * samples, workers)
+    assert chunk >= 1
+    assert chunk * samples <= MAX_TASK_ROWS or chunk == 1  # a task's rows stay bounded
+    n_tasks = -(-n_particles // chunk)
+    assert n_tasks >= min(n_particles, TASKS_PER_WORKER * workers)  # no worker idles
+
+
+def test_default_chunk_run_equals_in_process(client, job):
+    tracks, ids, groups, settings, spectrum, windows = job
+    local = compute_fields(tracks, groups, settings, spectrum=spectrum, windows=windows)
+    chunks = []
+    remote = _distributed(client, job, progress=chunks.append, chunk=None)
+    assert len(chunks) == min(len(ids), TASKS_PER_WORKER * 2)  # 2 workers, 4 tasks each
+    assert sum(chunks) == len(ids)
+    for a, b in zip(_arrays(local), _arrays(remote), strict=True):
+        assert np.max(np.abs(a - b)) <= 1e-12 * np.max(np.abs(a))

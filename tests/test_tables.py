@@ -5,6 +5,8 @@ from __future__ import annotations
 
 import dataclasses
 
+import hypothesis
+import hypothesis.strategies as st
 import numpy as np
 import pandas as pd
 import pyarrow as pa
@@ -103,3 +105,27 @@ def test_spectra_table_of_groups_with_other_columns_fills_nan():
     np.testing.assert_array_equal(table["fluence"], [0.0, 1.0, 2.0, 3.0, 4.0, 5.0, 7.0, 8.0, 9.0])
     np.testing.assert_array_equal(table["dW_df_dOmega"][:6], 4.0 * np.arange(6.0))
     assert table["dW_df_dOmega"][6:].isna().all()
+
+
+@hypothesis.settings(max_examples=60, deadline=None)
+@hypothesis.given(st.lists(st.lists(st.integers(0, 4), min_size=1, max_size=6),
+                           min_size=1, max_size=3))
+def test_fields_table_equals_a_point_by_point_build_for_any_bin_counts(counts):
+    rng = np.random.default_rng(len(counts))
+    results = []
+    for k, n_bins in enumerate(counts):  # runs of equal lengths, empty points, any order
+        shape = (len(n_bins), 5, 3)
+        results.append(Fields(Group(f"g{k}", len(n_bins)), 1e-12, rng.random(len(n_bins)),
+                              np.array(n_bins), rng.standard_normal(shape),
+                              rng.standard_normal(shape)))
+    rows = [(r.group.name, point, r.start_s[point] + r.step_s * b,
+             *r.e_v_per_m[point, b], *r.b_t[point, b])
+            for r in results for point, n in enumerate(r.n_bins) for b in range(n)]
+    table = fields_table(results)
+    assert len(table) == len(rows)
+    if rows:
+        names, points, *values = zip(*rows, strict=True)
+        assert table["observer"].astype(str).tolist() == list(names)
+        np.testing.assert_array_equal(table["point"].to_numpy(), points)
+        np.testing.assert_array_equal(table[["t", *FIELD_COLUMNS]].to_numpy(),
+                                      np.array(values).T)

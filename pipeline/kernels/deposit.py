@@ -44,9 +44,10 @@ import math
 import numba
 import numpy as np
 
+from ..constants import C
 from ._jit import jit
-
-C = 299792458.0  # m/s, scipy.constants.c (kept literal so the kernels need no import)
+from .kappa import kappa as _kappa  # (locals here are named kappa)
+from .kappa import kappa_fraction
 
 
 @jit
@@ -130,15 +131,6 @@ def no_extensions(offsets):
     ends[:, 1, END_T] = np.inf
     ends[:, :, END_IG2] = 1.0
     return ends
-
-
-@jit
-def _kappa(nx, ny, nz, bx, by, bz, inv_g2):
-    """κ = 1 − n·β = (1/γ² + |n×β|²)/(1 + n·β), without cancellation."""
-    cx = ny * bz - nz * by
-    cy = nz * bx - nx * bz
-    cz = nx * by - ny * bx
-    return (inv_g2 + cx * cx + cy * cy + cz * cz) / (1.0 + nx * bx + ny * by + nz * bz)
 
 
 @jit
@@ -374,8 +366,8 @@ def _samples(geometry_p, far, soa, count, scratch):
         cx = ny * bz - nz * by  # n × β
         cy = nz * bx - nx * bz
         cz = nx * by - ny * bx
-        # κ = 1 − n·β = (1/γ² + |n×β|²)/(1 + n·β), without cancellation
-        inv_kappa = (1.0 + nb) / (inv_g2 + cx * cx + cy * cy + cz * cz)
+        numerator, denominator = kappa_fraction(nx, ny, nz, bx, by, bz, inv_g2)
+        inv_kappa = denominator / numerator  # 1/κ, without cancellation
         inv_cr = inv_r * INV_C
         inv_ckr = inv_cr * inv_kappa
         # bracket terms: n/(cR) + n×(n×β)/(cκR) with n×(n×β) = n(n·β) − β; −n×β/(cκR)

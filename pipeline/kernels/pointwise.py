@@ -3,7 +3,7 @@
 E = (n−β)/(γ²κ³R²) + n×((n−β)×β̇)/(cκ³R) per q/(4πε0) (near field, both terms), or the
 radiation term alone with n and R₀ fixed (far field); observer time t = t′ + R/c, or
 t = t′ + (R₀ − n·(r − O))/c in the far field. κ = (1/γ² + |n×β|²)/(1 + n·β) avoids the
-cancellation of 1 − n·β at high γ.
+cancellation of 1 − n·β at high γ (kernels/kappa.py).
 """
 
 from __future__ import annotations
@@ -12,21 +12,17 @@ import math
 
 import numpy as np
 
+from ..constants import C
 from ._jit import jit
-
-C = 299792458.0
+from .kappa import kappa
 
 
 @jit
 def field_at(nx, ny, nz, bx, by, bz, inv_g2, ax, ay, az, inv_r, velocity_term):
     """(Ex, Ey, Ez, κ) per q/(4πε0) for unit vector n, β, 1/γ², β̇ (1/s) and 1/R (1/m);
     the velocity term only when `velocity_term` (else the radiation term alone)."""
-    nb = nx * bx + ny * by + nz * bz
-    cx = ny * bz - nz * by
-    cy = nz * bx - nx * bz
-    cz = nx * by - ny * bx
-    kappa = (inv_g2 + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
-    inv_k3 = 1.0 / (kappa * kappa * kappa)
+    k = kappa(nx, ny, nz, bx, by, bz, inv_g2)
+    inv_k3 = 1.0 / (k * k * k)
     mx = nx - bx
     my = ny - by
     mz = nz - bz
@@ -36,7 +32,7 @@ def field_at(nx, ny, nz, bx, by, bz, inv_g2, ax, ay, az, inv_r, velocity_term):
     vel = inv_g2 * inv_k3 * inv_r * inv_r if velocity_term else 0.0
     rad = inv_k3 * inv_r / C
     return (mx * vel + (ny * wz - nz * wy) * rad, my * vel + (nz * wx - nx * wz) * rad,
-            mz * vel + (nx * wy - ny * wx) * rad, kappa)
+            mz * vel + (nx * wy - ny * wx) * rad, k)
 
 
 @jit
@@ -85,15 +81,15 @@ def fields_far_kappa(t, pos, beta, inv_g2, beta_dot, direction, distance, origin
         t_obs[j] = t[j] + (distance - projected) / C
 
 
-def point_fields(t, state, point: int, points_m, far, t_obs, e_out, kappa_out):
+def point_fields(t, state, point: int, far: bool, targets, distance_m, origin_m, t_obs, e_out,
+                 kappa_out):
     """Fill t_obs, e_out (per q/4πε0) and kappa_out of the samples (t, state = (pos, beta,
-    inv_g2, beta_dot)) at observer point `point`: near field at points_m[point], or, when
-    far = (directions (P, 3), distances (P,), origin (3,)), the far field in that direction."""
+    inv_g2, beta_dot)) at observer point `point`: near field at targets[point] (m), or, when
+    `far`, the far field in direction targets[point] at distance_m[point] from origin_m (3,)."""
     pos, beta, inv_g2, beta_dot = state
-    if far is None:
-        fields_near_kappa(t, pos, beta, inv_g2, beta_dot, points_m[point], t_obs, e_out,
-                          kappa_out)
+    if far:
+        fields_far_kappa(t, pos, beta, inv_g2, beta_dot, targets[point], distance_m[point],
+                         origin_m, t_obs, e_out, kappa_out)
     else:
-        directions, distance, origin = far
-        fields_far_kappa(t, pos, beta, inv_g2, beta_dot, directions[point], distance[point],
-                         origin, t_obs, e_out, kappa_out)
+        fields_near_kappa(t, pos, beta, inv_g2, beta_dot, targets[point], t_obs, e_out,
+                          kappa_out)

@@ -24,9 +24,10 @@ import math
 
 import numba
 
+from ..constants import C
 from ._jit import jit
+from .kappa import kappa
 
-C = 299792458.0
 PARALLEL_MIN_WORK = 200_000  # samples × points below which the serial drivers run
 
 
@@ -53,16 +54,12 @@ def _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers, se
             nx = dx / r
             ny = dy / r
             nz = dz / r
-        nb = nx * bx + ny * by + nz * bz
-        cx = ny * bz - nz * by
-        cy = nz * bx - nx * bz
-        cz = nx * by - ny * bx
-        kappa = (inv_g2[j] + cx * cx + cy * cy + cz * cz) / (1.0 + nb)
-        limit = min(limit, step / (per_bin * kappa))
+        k = kappa(nx, ny, nz, bx, by, bz, inv_g2[j])
+        limit = min(limit, step / (per_bin * k))
         if t_after[j] >= seen_lo[p] and t_before[j] <= seen_hi[p]:
             limit = min(limit, tolerance * r / C)
         if accel > 0.0:
-            limit = min(limit, tolerance * math.sqrt(2.0 * kappa) / accel)
+            limit = min(limit, tolerance * math.sqrt(2.0 * k) / accel)
     return limit
 
 
