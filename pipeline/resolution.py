@@ -61,14 +61,19 @@ class Finding:
                 f"{self.step_s / self.factor:.3g} s or less)")
 
 
-def sampled_velocity(track, degree: int) -> np.ndarray:
-    """β (n, 3) at the samples: from ux, uy, uz, else the derivative of the positions'
-    interpolating spline of `degree` (at most n − 1)."""
-    if track.u is not None:
-        return velocity_of(np.asarray(track.u, dtype=float))
-    k = min(degree, track.n_samples - 1)
-    spline = interpolate.make_interp_spline(track.t_s, track.position_m, k=k, axis=0)
-    return spline.derivative(1)(track.t_s) / constants.c
+AUDIT_BATCH = 256  # tracks the audit checks together (those sharing sample times at once)
+
+
+def sampled_velocity(t, positions_m, u, degree: int) -> np.ndarray:
+    """β (..., n, 3) at the samples t (n,) of tracks (positions_m, u: (..., n, 3), u may be
+    None): from ux, uy, uz, else the derivative of the positions' interpolating spline of
+    `degree` (at most n − 1)."""
+    if u is not None:
+        return velocity_of(np.asarray(u, dtype=float))
+    k = min(degree, t.size - 1)
+    spline = interpolate.make_interp_spline(t, np.asarray(positions_m, dtype=float), k=k,
+                                            axis=-2)
+    return spline.derivative(1)(t) / constants.c
 
 
 def check_resolution(track, degree: int = 5) -> Finding | None:
@@ -76,7 +81,7 @@ def check_resolution(track, degree: int = 5) -> Finding | None:
     t = np.asarray(track.t_s, dtype=float)
     if t.size < 3:
         return None
-    beta = sampled_velocity(track, degree)
+    beta = sampled_velocity(t, track.position_m, track.u, degree)
     step = np.diff(t)
     change = np.diff(beta, axis=0)  # (n−1, 3)
     candidates = [_ringing(t, beta, change, min(degree, t.size - 1)),
@@ -88,19 +93,27 @@ def check_resolution(track, degree: int = 5) -> Finding | None:
     return Finding(int(track.particle), what, float(t[i]), float(ratio), float(step[i]))
 
 
-def _ringing(t, beta, change, k):
-    spline = interpolate.make_interp_spline(t, beta, k=k, axis=0)
+def _ringing_ratios(t, beta, change, k):
+    """Ringing of tracks sampled at t (n,): beta (..., n, 3), change (..., n−1, 3) →
+    (ratio, overshoot, nearby, probes); ratio (..., n−1, 3) > 1 where a component rings."""
+    spline = interpolate.make_interp_spline(t, beta, k=k, axis=-2)
     y = (np.arange(1, PROBES_PER_INTERVAL) / PROBES_PER_INTERVAL)
-    probes = spline(t[:-1, None] + np.diff(t)[:, None] * y)  # (n−1, probes, 3)
-    low = np.minimum(beta[:-1], beta[1:])[:, None, :]
-    high = np.maximum(beta[:-1], beta[1:])[:, None, :]
-    overshoot = np.maximum(probes - high, low - probes).max(axis=1)  # (n−1, 3)
-    size = np.linalg.norm(change, axis=1)
-    nearby = np.maximum(size, np.maximum(np.r_[size[:1], size[:-1]], np.r_[size[1:], size[-1:]]))
-    nearby = np.maximum(nearby, MINOR_FRACTION * size.max())[:, None]
+    probes = spline(t[:-1, None] + np.diff(t)[:, None] * y)  # (..., n−1, probes, 3)
+    low = np.minimum(beta[..., :-1, :], beta[..., 1:, :])[..., None, :]
+    high = np.maximum(beta[..., :-1, :], beta[..., 1:, :])[..., None, :]
+    overshoot = np.maximum(probes - high, low - probes).max(axis=-2)  # (..., n−1, 3)
+    size = np.linalg.norm(change, axis=-1)
+    before = np.concatenate([size[..., :1], size[..., :-1]], axis=-1)
+    after = np.concatenate([size[..., 1:], size[..., -1:]], axis=-1)
+    nearby = np.maximum(size, np.maximum(before, after))
+    nearby = np.maximum(nearby, MINOR_FRACTION * size.max(axis=-1, keepdims=True))[..., None]
     with np.errstate(divide="ignore", invalid="ignore"):
         ratio = np.where(overshoot > TURN_FLOOR, overshoot / (RING_FRACTION * nearby), 0.0)
-    ratio = np.nan_to_num(ratio, posinf=1e300)
+    return np.nan_to_num(ratio, posinf=1e300), overshoot, nearby, probes
+
+
+def _ringing(t, beta, change, k):
+    ratio, overshoot, nearby, probes = _ringing_ratios(t, beta, change, k)
     i, c = np.unravel_index(int(np.argmax(ratio)), ratio.shape)
     if not ratio[i, c] > 1.0:
         return None
@@ -115,17 +128,22 @@ def _ringing(t, beta, change, k):
     return ratio[i, c], what, i
 
 
+def _jump_ratios(change, step):
+    """β̇ jumps of tracks: change (..., n−1, 3), step (n−1,) → (ratio (..., n−2), jump)."""
+    rate = change / step[:, None]
+    size = np.linalg.norm(rate, axis=-1)
+    moving = np.linalg.norm(change, axis=-1) > TURN_FLOOR
+    both = moving[..., 1:] & moving[..., :-1]
+    larger = size.max(axis=-1, keepdims=True)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        jump = np.linalg.norm(np.diff(rate, axis=-2), axis=-1) / larger
+    return np.where(both, jump / ACCEL_CHANGE, 0.0), jump
+
+
 def _accel_jumps(t, change, step):
     if change.shape[0] < 2:
         return None
-    rate = change / step[:, None]
-    size = np.linalg.norm(rate, axis=1)
-    moving = np.linalg.norm(change, axis=1) > TURN_FLOOR
-    both = moving[1:] & moving[:-1]
-    larger = size.max()
-    with np.errstate(divide="ignore", invalid="ignore"):
-        jump = np.linalg.norm(np.diff(rate, axis=0), axis=1) / larger
-    ratio = np.where(both, jump / ACCEL_CHANGE, 0.0)
+    ratio, jump = _jump_ratios(change, step)
     i = int(np.argmax(ratio))
     if not ratio[i] > 1.0:
         return None
@@ -135,22 +153,60 @@ def _accel_jumps(t, change, step):
 
 
 class ResolutionAudit:
-    """Findings of many tracks, for one aggregated warning (`add` each track)."""
+    """Findings of many tracks, for one aggregated warning (`add` each track). Tracks are
+    checked in batches of AUDIT_BATCH, those sharing sample times together; only the worst
+    track's finding is worded (by `check_resolution`)."""
 
     def __init__(self, degree: int = 5):
         self.degree = degree
         self.findings = 0
         self.worst: Finding | None = None
+        self._pending = []
 
-    def add(self, track) -> Finding | None:
-        finding = check_resolution(track, self.degree)
-        if finding is not None:
-            self.findings += 1
-            if self.worst is None or finding.ratio > self.worst.ratio:
+    def add(self, track) -> None:
+        self._pending.append(track)
+        if len(self._pending) >= AUDIT_BATCH:
+            self._check_pending()
+
+    def _check_pending(self) -> None:
+        groups = {}
+        for order, track in enumerate(self._pending):
+            key = (np.asarray(track.t_s, dtype=float).tobytes(), track.u is None)
+            groups.setdefault(key, []).append((order, track))
+        worst_ratio = np.full(len(self._pending), -np.inf)
+        for members in groups.values():
+            ratios = self._worst_ratios([track for _, track in members])
+            for (order, _), ratio in zip(members, ratios, strict=True):
+                worst_ratio[order] = ratio
+        self.findings += int(np.count_nonzero(worst_ratio > 1.0))
+        best = int(np.argmax(worst_ratio))
+        if worst_ratio[best] > 1.0 and (self.worst is None
+                                        or worst_ratio[best] > self.worst.ratio):
+            finding = check_resolution(self._pending[best], self.degree)
+            if finding is not None and (self.worst is None or finding.ratio > self.worst.ratio):
                 self.worst = finding
-        return finding
+        self._pending = []
+
+    def _worst_ratios(self, tracks) -> np.ndarray:
+        """Per track (sharing sample times and kind) its largest ratio of either check."""
+        t = np.asarray(tracks[0].t_s, dtype=float)
+        if t.size < 3:
+            return np.full(len(tracks), -np.inf)
+        positions = np.stack([np.asarray(track.position_m, dtype=float) for track in tracks])
+        u = (None if tracks[0].u is None else
+             np.stack([np.asarray(track.u, dtype=float) for track in tracks]))
+        beta = sampled_velocity(t, positions, u, self.degree)
+        step = np.diff(t)
+        change = np.diff(beta, axis=-2)
+        ring = _ringing_ratios(t, beta, change, min(self.degree, t.size - 1))[0]
+        worst = ring.reshape(len(tracks), -1).max(axis=1)
+        if change.shape[-2] >= 2:
+            worst = np.maximum(worst, _jump_ratios(change, step)[0].max(axis=1))
+        return worst
 
     def warnings(self) -> list[str]:
+        if self._pending:
+            self._check_pending()
         if self.worst is None:
             return []
         many = "1 particle's" if self.findings == 1 else f"{self.findings} particles'"
