@@ -19,8 +19,9 @@ timed.
       incoherent: cost per particle at each N, extrapolated to 1e6.
 
 Run: python tests/benchmarks/bench_end_to_end.py [--quick | --full] [--cases a,b,c,d]
-[--profile] [--max-seconds S]. lagfield uses all cores (numba threads, printed); the NumPy
-reference one (plus whatever threads its BLAS uses for the matrix products).
+[--profile] [--max-seconds S] [--workers N]. lagfield uses all cores (numba threads in one
+process, or N local Dask worker processes; printed); the NumPy reference one (plus whatever
+threads its BLAS uses for the matrix products).
 """
 
 from __future__ import annotations
@@ -81,9 +82,12 @@ def write_tracks(scenario, directory: Path) -> Path:
     return path
 
 
-def run_lagfield(scenario, directory: Path, profile: bool = False):
-    """(seconds, Signals) of lagfield.run on the scenario, or (None, message) on an error."""
+def run_lagfield(scenario, directory: Path, profile: bool = False, workers: int = 0):
+    """(seconds, Signals) of lagfield.run on the scenario, or (None, message) on an error;
+    workers > 0: on that many local Dask workers ([compute] workers)."""
     run = scenario.run_dict("tracks.parquet")
+    if workers:
+        run["compute"] = {"workers": workers}
     profiler = cProfile.Profile() if profile else None
     start = time.perf_counter()
     try:
@@ -111,7 +115,20 @@ def run_numpy(scenario, tracks_path: Path, groups=None, refined: bool = False):
     return time.perf_counter() - start, result
 
 
+def kernel_share(profiler) -> float:
+    """Fraction of the profiled time spent inside lagfield's compiled kernels (own time of
+    the functions defined in lagfield/kernels/, called from Python)."""
+    stats = pstats.Stats(profiler).stats
+    kernels = str(Path(lagfield.__file__).parent / "kernels") + os.sep
+    inside = sum(row[2] for (filename, _, _), row in stats.items()
+                 if filename.startswith(kernels))
+    total = sum(row[2] for row in stats.values())
+    return inside / total if total else 0.0
+
+
 def print_profile(profiler, top: int = 8) -> None:
+    print(f"      compiled kernels: {kernel_share(profiler):.0%} of the run's time "
+          "(own time under cProfile)")
     out = io.StringIO()
     pstats.Stats(profiler, stream=out).sort_stats("tottime").print_stats(top)
     lines = [line for line in out.getvalue().splitlines() if line.strip()]
@@ -204,7 +221,7 @@ def run_case(key, sizes, options, workdir: Path) -> list:
     warm_dir.mkdir()
     write_tracks(warm, warm_dir)
     started = time.perf_counter()
-    run_lagfield(warm, warm_dir)
+    run_lagfield(warm, warm_dir, workers=options.workers)
     print(f"  case {key}: warm-up run {time.perf_counter() - started:.1f} s (not counted)")
     rows, lag_per_particle, numpy_per_particle = [], None, None
     for index, size in enumerate(series):
@@ -219,13 +236,16 @@ def run_case(key, sizes, options, workdir: Path) -> list:
         directory.mkdir()
         path = write_tracks(scenario, directory)
         print(f"  case {key} ({scenario.description}): {label}", flush=True)
+        if key == "c" and index == 0 and not options.profile:  # an extra, untimed run
+            run_lagfield(scenario, directory, profile=True)  # in process, to see the kernels
         row = {"case": key, "n": n, "label": label}
         projected = None if lag_per_particle is None else lag_per_particle * n
         if projected is not None and projected > options.max_seconds:
             row["lagfield"] = f"skipped (projected {projected:.0f} s)"
         else:
             seconds, signals = run_lagfield(scenario, directory,
-                                            profile=options.profile and index == 0)
+                                            profile=options.profile and index == 0,
+                                            workers=options.workers)
             if seconds is None:
                 row["lagfield"] = f"failed: {signals}"
                 print(f"    lagfield failed: {signals}")
@@ -304,12 +324,17 @@ def main() -> None:
     parser.add_argument("--max-seconds", type=float, default=1800.0,
                         help="skip a size whose time, projected from the previous size, "
                         "exceeds this (default 1800)")
+    parser.add_argument("--workers", type=int, default=0,
+                        help="run lagfield on this many local Dask workers (default: in "
+                        "process, numba threads on all cores)")
     options = parser.parse_args()
     sizes = SIZES["quick" if options.quick else "full" if options.full else "default"]
     import numba
 
-    print(f"lagfield {lagfield.__version__}; numba threads {numba.get_num_threads()} of "
-          f"{os.cpu_count()} cores; load average {os.getloadavg()[0]:.1f}")
+    placement = (f"{options.workers} Dask workers" if options.workers else
+                 f"in process, numba threads {numba.get_num_threads()}")
+    print(f"lagfield {lagfield.__version__}; {placement}; {os.cpu_count()} cores; "
+          f"load average {os.getloadavg()[0]:.1f}")
     rows = []
     with tempfile.TemporaryDirectory(prefix="lagfield-bench-") as tmp:
         for key in options.cases.split(","):
