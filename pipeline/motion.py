@@ -93,12 +93,7 @@ BATCH_TRACKS = 512
 # and |β|² against 1 (units in the last place).
 CHECK_MARGIN = 1e-9
 SPEED_MARGIN = 8 * EPS
-# the other kind's arrays in a group record (shared: interval_of, knots)
-_NO_INTERVALS = np.zeros(0, dtype=np.int64)
-_NO_TIMES = np.zeros(0)
-# which fields of a record (`Motion.record`) have a leading motion axis in a group's
-_PER_MOTION = (False, False, True, False, False, True, True, True, True, True, True, True,
-               True, True)
+_NO_INTERVALS = np.zeros(0, dtype=np.int64)  # interval_of of a positions-only record
 
 
 class Motion:
@@ -143,9 +138,8 @@ class Motion:
 
     def _adopt(self, group: _Group, g: int) -> None:
         """Take motion g of `group` (views of its arrays)."""
-        self._record = tuple(field[g] if per else field
-                             for field, per in zip(group.record, _PER_MOTION, strict=True))
-        self._breaks = group.record[1]
+        self._record = (group.record[0], group.record[1][g])
+        self._breaks = kernels.field(self._record, "breaks")
         if group.raw_slip_s is not None:
             self.raw_slip_s = group.raw_slip_s[g]
             self.chord_m = group.chord_m[g]
@@ -170,9 +164,8 @@ class Motion:
 
     @property
     def record(self) -> tuple:
-        """The motion as the compiled kernels take it (`lagfield.kernels.motion`):
-        (has_momentum, breaks, coef, interval_of, knots, knot_r, slip_s, chord_slip_s,
-        u_coef, path_cheb, start_offset, ends_r, ends_beta, ends_inv_g2)."""
+        """The motion as the compiled kernels take it (`lagfield.kernels.motion`): (header
+        (int64), values (L,) float64), a view of its group's arrays."""
         return self._record
 
     # ------------------------------------------------------------------ checks
@@ -276,9 +269,9 @@ def _check_degree(degree: int) -> None:
 # ---------------------------------------------------------------------------- groups
 @dataclasses.dataclass
 class _Group:
-    """Motions built together from tracks sampled at the same times t_s: their record with
-    a leading motion axis on the per-motion arrays (`lagfield.kernels.motion`), their
-    places in the chunk (indices), and with momenta the slips (G, n−1, 3) of `Motion`."""
+    """Motions built together from tracks sampled at the same times t_s: their record
+    (header, values (G, L)) (`lagfield.kernels.motion`), their places in the chunk
+    (indices), and with momenta the slips (G, n−1, 3) of `Motion`."""
 
     motions: list
     indices: np.ndarray
@@ -363,15 +356,12 @@ def _finish(motions, indices, t, record, **slips) -> _Group:
     """The group of `record` (ends still to fill): its ends evaluated, its motions set."""
     group = _Group(motions, indices, t, record, **slips)
     pos, beta, inv_g2 = group.evaluate(np.array([t[0], t[-1]]))[:3]
-    record[-3][...], record[-2][...], record[-1][...] = pos, beta, inv_g2
+    for name, value in zip(("ends_r", "ends_beta", "ends_inv_g2"), (pos, beta, inv_g2),
+                           strict=True):
+        kernels.field(record, name)[...] = value
     for g, motion in enumerate(motions):
         motion._adopt(group, g)
     return group
-
-
-def _ends(n_motions: int) -> tuple:
-    """Room for the ends of a group's record: ends_r, ends_beta, ends_inv_g2."""
-    return np.zeros((n_motions, 2, 3)), np.zeros((n_motions, 2, 3)), np.ones((n_motions, 2))
 
 
 def _positions_group(motions, indices, t, position, smoothing_m) -> _Group:
@@ -388,10 +378,8 @@ def _positions_group(motions, indices, t, position, smoothing_m) -> _Group:
     coef = [taylor_coefficients(s, start, k) for s in splines]
     # (P, k+1, G, 3) from one spline of every coordinate, (P, k+1) from each of three
     coef = np.moveaxis(coef[0], 2, 0) if len(coef) == 1 else np.stack(coef, axis=-1)[None]
-    rows = np.zeros((len(motions), 0, 3))
-    pieces = np.zeros((len(motions), 0, 1, 3))
-    record = (False, breaks, np.ascontiguousarray(coef), _NO_INTERVALS, _NO_TIMES, rows, rows,
-              rows, pieces, pieces, rows, *_ends(len(motions)))
+    record = kernels.pack(False, _NO_INTERVALS, {"breaks": breaks, "coef": coef},
+                          len(motions))
     return _finish(motions, indices, t, record)
 
 
@@ -464,9 +452,10 @@ def _momenta_group(motions, indices, t, breaks, interval_of, position, u_coef, p
     chord_slip = np.ascontiguousarray(used - drift / C)
     start_offset = np.zeros((n_motions, t.size, 3))
     np.cumsum(reached - drift, axis=1, out=start_offset[:, 1:])
-    record = (True, breaks, np.zeros((n_motions, 0, 1, 3)), interval_of, t,
-              np.ascontiguousarray(position), used, chord_slip, u_coef, path, start_offset,
-              *_ends(n_motions))
+    record = kernels.pack(True, interval_of, {
+        "breaks": breaks, "knots": t, "knot_r": position, "slip_s": used,
+        "chord_slip_s": chord_slip, "u_coef": u_coef, "path_cheb": path,
+        "start_offset": start_offset}, n_motions)
     return _finish(motions, indices, t, record, raw_slip_s=slip, chord_m=chord,
                    integral_m=integral)
 

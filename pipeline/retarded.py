@@ -34,8 +34,8 @@ def retarded_time(motion, observer_m, t_obs_s, *, far_direction=None, far_distan
     targets = np.ascontiguousarray(np.broadcast_to(target, count + (3,)))
     distances = np.ascontiguousarray(np.broadcast_to(distance, count))
     out = np.empty(count)
-    kernels.retarded_fields(targets, distances, np.asarray(origin_m, dtype=float), far, t_obs,
-                            out, *motion.record)
+    kernels.retarded_rows(*motion.record, targets, distances,
+                          np.asarray(origin_m, dtype=float), far, t_obs, out)
     return out
 
 
@@ -49,11 +49,11 @@ def span_times(motion, geometry, edge_lo, edge_hi, extend: str):
     distances = geometry.distance_m if geometry.far else _NO_DISTANCES
     lo = np.empty(count)
     hi = np.empty(count)
-    kernels.source_span_fields(
-        np.ascontiguousarray(geometry.targets, dtype=float),
+    kernels.source_span(
+        *motion.record, np.ascontiguousarray(geometry.targets, dtype=float),
         np.ascontiguousarray(distances, dtype=float),
         np.ascontiguousarray(geometry.origin_m, dtype=float), bool(geometry.far),
         np.ascontiguousarray(np.broadcast_to(np.asarray(edge_lo, dtype=float), count)),
         np.ascontiguousarray(np.broadcast_to(np.asarray(edge_hi, dtype=float), count)),
-        extend == "none", lo, hi, *motion.record)
+        extend == "none", lo, hi)
     return lo, hi

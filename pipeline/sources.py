@@ -10,6 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 from .errors import LagfieldError, ObserverError
+from .kernels import motion as motion_kernels
 from .kernels import refine
 from .motion import Motion
 from .retarded import span_times
@@ -50,14 +51,14 @@ def source_samples(motion: Motion, group, geometry, span, resolution_s: float, s
     acceleration on the extension side). LagfieldError when more than max_samples samples
     would be needed or the sampling does not settle in max_refinements levels;
     ObserverError when the track comes within reach_m of a point (near field)."""
-    status, t, state, point, distance_m = refine.refine_fields(
+    status, t, state, point, distance_m = refine.refine(
         *motion.record, np.ascontiguousarray(motion.track.t_s, dtype=float), float(span[0]),
         float(span[1]), int(subdivisions), np.ascontiguousarray(geometry.targets, dtype=float),
         np.ascontiguousarray(seen[0], dtype=float), np.ascontiguousarray(seen[1], dtype=float),
         bool(geometry.far), float(resolution_s), float(per_bin), float(tolerance),
         int(uniform_split_max), int(max_samples), int(max_refinements), float(reach_m))
     if status == refine.OK:
-        return t, state
+        return t, motion_kernels.state_columns(state)
     if status == refine.TOO_MANY_SAMPLES:
         raise LagfieldError(
             f"particle {motion.particle}, observer group '{group.name}': more than "

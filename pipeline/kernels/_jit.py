@@ -12,7 +12,8 @@ import numba
 JIT_OPTIONS = {"error_model": "numpy", "fastmath": False, "cache": True}
 
 
-def jit(function=None, *, parallel: bool = False):
-    """numba.njit with the project's options."""
-    decorator = numba.njit(parallel=parallel, **JIT_OPTIONS)
+def jit(function=None, *, parallel: bool = False, inline: bool = False):
+    """numba.njit with the project's options; inline: compiled into each caller (numba IR)."""
+    decorator = numba.njit(parallel=parallel, inline="always" if inline else "never",
+                           **JIT_OPTIONS)
     return decorator if function is None else decorator(function)

@@ -19,10 +19,10 @@ it sees, `sampling._closest`) is checked on the initial and on the final samples
 only). Last, where the samples meet the ballistic extensions at the track's first or last
 sample, that sample is doubled (same state; zero β̇ on the extension side).
 
-`refine` takes the motion record (`lagfield.motion.Motion.record`) and is callable from other
-compiled code; `refine_fields` is the same taking the record's fields one by one (typing a
-tuple from Python is slow); `refined_samples` is the Python entry taking a Motion, raising
-the run's errors.
+`refine` takes the motion record's arrays (header, values) (`lagfield.motion.Motion.record`)
+and is callable from other compiled code. The samples' states are rows of one array
+(N, STATE_WIDTH) (`lagfield.kernels.motion`: columns POS, BETA, INV_G2, BETA_DOT, REF_T,
+REF_R, DISP), so that evaluating, copying and limiting a sample pass few arrays.
 """
 
 from __future__ import annotations
@@ -30,8 +30,12 @@ from __future__ import annotations
 import numpy as np
 
 from ._jit import jit
-from .motion import state_row
+from .motion import BETA, BETA_DOT, INV_G2, POS, STATE_WIDTH, state_into
 from .sampling import _closest, _step_limit
+
+# the step limit of one sample, inlined here: a call passing its dozen arrays costs as much
+# as its arithmetic
+_step_limit_here = jit(inline=True)(_step_limit.py_func)
 
 OK = 0
 TOO_MANY_SAMPLES = 1
@@ -74,52 +78,31 @@ def _grown(array, used, capacity):
 
 @jit
 def _new_state(n):
-    """Empty (pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp) for n rows."""
-    return (np.empty((n, 3)), np.empty((n, 3)), np.empty(n), np.empty((n, 3)), np.empty(n),
-            np.empty((n, 3)), np.empty((n, 3)))
-
-
-@jit
-def _grown_state(state, used, capacity):
-    pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp = state
-    return (_grown(pos, used, capacity), _grown(beta, used, capacity),
-            _grown(inv_g2, used, capacity), _grown(beta_dot, used, capacity),
-            _grown(ref_t, used, capacity), _grown(ref_r, used, capacity),
-            _grown(disp, used, capacity))
+    """An empty state array for n rows."""
+    return np.empty((n, STATE_WIDTH))
 
 
 @jit
 def _copy_row(source, i, target, j):
-    """Row i of the state `source` into row j of `target` (element by element: a slice
-    assignment would allocate)."""
-    pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp = target
-    for c in range(3):
-        pos[j, c] = source[0][i, c]
-        beta[j, c] = source[1][i, c]
-        beta_dot[j, c] = source[3][i, c]
-        ref_r[j, c] = source[5][i, c]
-        disp[j, c] = source[6][i, c]
-    inv_g2[j] = source[2][i]
-    ref_t[j] = source[4][i]
+    """Row i of the state array `source` into row j of `target` (element by element: a
+    slice assignment would allocate)."""
+    for k in range(STATE_WIDTH):
+        target[j, k] = source[i, k]
 
 
 @jit
 def _zero_acceleration(state, j):
     for c in range(3):
-        state[3][j, c] = 0.0
+        state[j, BETA_DOT + c] = 0.0
 
 
-@jit
-def _evaluate(record, t, j, state):
-    pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp = state
-    state_row(record, t, j, pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp)
-
-
-@jit
+@jit(inline=True)
 def _limit(j, state, before, after, targets, seen_lo, seen_hi, far_field, resolution_s,
            per_bin, tolerance):
-    return _step_limit(j, state[0], state[1], state[2], state[3], before, after, targets,
-                       seen_lo, seen_hi, far_field, resolution_s, per_bin, tolerance)
+    return _step_limit_here(j, state[:, POS:POS + 3], state[:, BETA:BETA + 3],
+                            state[:, INV_G2], state[:, BETA_DOT:BETA_DOT + 3], before, after,
+                            targets, seen_lo, seen_hi, far_field, resolution_s, per_bin,
+                            tolerance)
 
 
 @jit
@@ -180,12 +163,12 @@ def _double_track_ends(t, state, n, t_first, t_last):
 
 
 @jit
-def refine(record, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi, far_field,
-           resolution_s, per_bin, tolerance, uniform_split_max, max_samples, max_depth,
-           reach_m):
-    """Refined source times over [t_lo, t_hi] of the motion `record` (of the track sampled at
-    knots_s (n,) s) and the motion at them:
-    (status, t (N,), (pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp), point, distance_m).
+def refine(header, values, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
+           far_field, resolution_s, per_bin, tolerance, uniform_split_max, max_samples,
+           max_depth, reach_m):
+    """Refined source times over [t_lo, t_hi] of the motion (header, values) (of the track
+    sampled at knots_s (n,) s) and the motion at them:
+    (status, t (N,), state (N, STATE_WIDTH), point, distance_m).
 
     targets (P, 3): points in m, or unit directions when far_field; seen_lo, seen_hi (P,) s:
     the source times whose light reaches point p within its window; resolution_s: the
@@ -199,7 +182,7 @@ def refine(record, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
     after = np.empty(n_start)
     limits = np.empty(n_start)
     for j in range(n_start):
-        _evaluate(record, start[j], j, initial)
+        state_into(header, values, start[j], initial, j)
         before[j] = start[max(j - 1, 0)]
         after[j] = start[min(j + 1, n_start - 1)]
     for j in range(n_start):
@@ -208,8 +191,8 @@ def refine(record, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
     empty = start[:0]
     empty_state = _new_state(0)
     if not far_field:
-        point, distance = _nearest_reached(start, initial[0], n_start, targets, seen_lo,
-                                           seen_hi, reach_m)
+        point, distance = _nearest_reached(start, initial[:, POS:POS + 3], n_start, targets,
+                                           seen_lo, seen_hi, reach_m)
         if point >= 0:
             return REACHES_POINT, empty, empty_state, point, distance
     if n_start == 0:
@@ -259,7 +242,7 @@ def refine(record, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
             if settled:
                 if n == t.shape[0]:
                     t = _grown(t, n, 2 * n)
-                    out = _grown_state(out, n, 2 * n)
+                    out = _grown(out, n, 2 * n)
                 t[n] = stack_t[b]
                 _copy_row(stack, b, out, n)
                 n += 1
@@ -275,7 +258,7 @@ def refine(record, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
             stack_level = _grown(stack_level, top, capacity)
             stack_before = _grown(stack_before, top, capacity)
             stack_after = _grown(stack_after, top, capacity)
-            stack = _grown_state(stack, top, capacity)
+            stack = _grown(stack, top, capacity)
         stack_level[b] = level + 1
         for rank in range(count, 0, -1):
             t_new = a_t + part * rank
@@ -283,33 +266,20 @@ def refine(record, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
             stack_level[top] = level + 1
             stack_before[top] = t_new - part
             stack_after[top] = t_new + part
-            _evaluate(record, t_new, top, stack)
+            state_into(header, values, t_new, stack, top)
             stack_limit[top] = _limit(top, stack, stack_before, stack_after, targets, seen_lo,
                                       seen_hi, far_field, resolution_s, per_bin, tolerance)
             top += 1
     if not settled:
         return NOT_SETTLED, empty, empty_state, -1, np.inf
     if not far_field:
-        point, distance = _nearest_reached(t, out[0], n, targets, seen_lo, seen_hi, reach_m)
+        point, distance = _nearest_reached(t, out[:, POS:POS + 3], n, targets, seen_lo,
+                                           seen_hi, reach_m)
         if point >= 0:
             return REACHES_POINT, empty, empty_state, point, distance
     if n + 2 > t.shape[0]:
         t = _grown(t, n, n + 2)
-        out = _grown_state(out, n, n + 2)
+        out = _grown(out, n, n + 2)
     n = _double_track_ends(t, out, n, knots_s[0], knots_s[knots_s.shape[0] - 1])
     # copies of just the samples: slices would keep the spare rows alive
-    return OK, _grown(t, n, n), _grown_state(out, n, n), -1, np.inf
-
-
-@jit
-def refine_fields(has_momentum, breaks, coef, interval_of, knots, knot_r, slip_s, chord_slip_s,
-                  u_coef, path_cheb, start_offset, ends_r, ends_beta, ends_inv_g2, knots_s,
-                  t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi, far_field, resolution_s,
-                  per_bin, tolerance, uniform_split_max, max_samples, max_depth, reach_m):
-    """`refine` with the record's fields passed one by one (a call from Python types a
-    tuple argument slowly)."""
-    record = (has_momentum, breaks, coef, interval_of, knots, knot_r, slip_s, chord_slip_s,
-              u_coef, path_cheb, start_offset, ends_r, ends_beta, ends_inv_g2)
-    return refine(record, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
-                  far_field, resolution_s, per_bin, tolerance, uniform_split_max, max_samples,
-                  max_depth, reach_m)
+    return OK, _grown(t, n, n), _grown(out, n, n), -1, np.inf

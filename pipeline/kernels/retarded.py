@@ -1,6 +1,6 @@
 """The retarded-time condition t = t′ + R(t′)/c solved for t′, one observer at a time, and
 the source span of one particle (the source times whose light reaches each point at its
-window's edges), on a motion record (`lagfield.kernels.motion`).
+window's edges), on a motion record (header, values) (`lagfield.kernels.motion`).
 
 g(t′) = t′ + R(t′)/c − t is increasing (g′ = κ > 0 for |β| < 1), so a root is bracketed by
 t′ = t (where g = R/c ≥ 0 in the near field) and a point found by stepping back in steps
@@ -24,7 +24,7 @@ import numpy as np
 from ..constants import C
 from ._jit import jit
 from .kappa import kappa
-from .motion import state_row
+from .motion import BREAKS, ENDS_BETA, ENDS_INV_G2, ENDS_R, PIECES, motion_state
 
 MAX_ITERATIONS = 400  # bracket growths, and Newton/bisection steps, per solve
 TOLERANCE = 4.0 * np.finfo(np.float64).eps  # of max(|t′|, |t|): a solve is converged
@@ -32,49 +32,39 @@ SMALLEST_REACH_S = 1e-30  # first bracket step when the delay at t′ = t is zer
 
 
 @jit
-def state_scratch():
-    """One row of each output of `state_row`: (pos, beta, inv_g2, beta_dot, ref_t, ref_r,
-    disp), allocated once and reused by every solve of a call."""
-    return (np.empty((1, 3)), np.empty((1, 3)), np.empty(1), np.empty((1, 3)), np.empty(1),
-            np.empty((1, 3)), np.empty((1, 3)))
-
-
-@jit
-def delay_and_kappa(record, t_src, target, far_distance, origin, far, scratch):
-    """(delay s, κ) of the light leaving the charge at t_src: near field, target is the
-    observer (3,) and delay = R/c; far field, target is the direction n (3,) and delay =
-    (R₀ − n·(r − O))/c with R₀ = far_distance."""
-    pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp = scratch
-    state_row(record, t_src, 0, pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp)
+def delay_and_kappa(header, values, t_src, target, far_distance, origin, far):
+    """(delay s, κ) of the light leaving the charge of the motion (header, values) at
+    t_src: near field, target is the observer (3,) and delay = R/c; far field, target is
+    the direction n (3,) and delay = (R₀ − n·(r − O))/c with R₀ = far_distance."""
+    x, y, z, bx, by, bz, inv_g2 = motion_state(header, values, t_src)[:7]
     if far:
         nx, ny, nz = target[0], target[1], target[2]
-        projected = (nx * (pos[0, 0] - origin[0]) + ny * (pos[0, 1] - origin[1])
-                     + nz * (pos[0, 2] - origin[2]))
+        projected = nx * (x - origin[0]) + ny * (y - origin[1]) + nz * (z - origin[2])
         delay = (far_distance - projected) / C
     else:
-        dx = target[0] - pos[0, 0]
-        dy = target[1] - pos[0, 1]
-        dz = target[2] - pos[0, 2]
+        dx = target[0] - x
+        dy = target[1] - y
+        dz = target[2] - z
         distance = math.sqrt(dx * dx + dy * dy + dz * dz)
         nx, ny, nz = dx / distance, dy / distance, dz / distance
         delay = distance / C
-    return delay, kappa(nx, ny, nz, beta[0, 0], beta[0, 1], beta[0, 2], inv_g2[0])
+    return delay, kappa(nx, ny, nz, bx, by, bz, inv_g2)
 
 
 @jit
-def _excess(record, t_src, target, far_distance, origin, far, t_obs, scratch):
+def _excess(header, values, t_src, target, far_distance, origin, far, t_obs):
     """g(t_src) = t_src + delay − t_obs."""
-    return t_src + delay_and_kappa(record, t_src, target, far_distance, origin, far,
-                                   scratch)[0] - t_obs
+    return t_src + delay_and_kappa(header, values, t_src, target, far_distance, origin,
+                                   far)[0] - t_obs
 
 
 @jit
-def retarded_row(record, target, far_distance, origin, far, t_obs, scratch):
+def retarded_row(header, values, target, far_distance, origin, far, t_obs):
     """The source time t′ whose light reaches `target` (observer (3,), or far-field direction
-    (3,) at distance far_distance from origin (3,) when `far`) at t_obs; scratch from
-    `state_scratch`. RuntimeError when no bracket is found within MAX_ITERATIONS steps."""
+    (3,) at distance far_distance from origin (3,) when `far`) at t_obs, of the motion
+    (header, values). RuntimeError when no bracket is found within MAX_ITERATIONS steps."""
     high = t_obs
-    delay = delay_and_kappa(record, high, target, far_distance, origin, far, scratch)[0]
+    delay = delay_and_kappa(header, values, high, target, far_distance, origin, far)[0]
     g_high = delay  # g(t) = R/c ≥ 0 (near field); the far-field delay may be negative
     first_reach = max(abs(delay), SMALLEST_REACH_S)
     reach = first_reach
@@ -82,13 +72,13 @@ def retarded_row(record, target, far_distance, origin, far, t_obs, scratch):
         if not g_high < 0.0:
             break
         high = high + reach
-        g_high = _excess(record, high, target, far_distance, origin, far, t_obs, scratch)
+        g_high = _excess(header, values, high, target, far_distance, origin, far, t_obs)
         reach = reach * 4.0
     reach = first_reach
     low = high - reach
     found = False
     for _ in range(MAX_ITERATIONS):
-        g_low = _excess(record, low, target, far_distance, origin, far, t_obs, scratch)
+        g_low = _excess(header, values, low, target, far_distance, origin, far, t_obs)
         if not g_low > 0.0:
             found = True
             break
@@ -101,7 +91,7 @@ def retarded_row(record, target, far_distance, origin, far, t_obs, scratch):
     x = high if g_high == 0.0 else low
     done = g_high == 0.0
     for _ in range(MAX_ITERATIONS):
-        delay, slope = delay_and_kappa(record, x, target, far_distance, origin, far, scratch)
+        delay, slope = delay_and_kappa(header, values, x, target, far_distance, origin, far)
         g = x + delay - t_obs
         if g <= 0.0:
             low = x
@@ -116,13 +106,12 @@ def retarded_row(record, target, far_distance, origin, far, t_obs, scratch):
 
 
 @jit
-def retarded_rows(record, targets, far_distance, origin, far, t_obs, out):
+def retarded_rows(header, values, targets, far_distance, origin, far, t_obs, out):
     """`retarded_row` for every k: targets (K, 3), far_distance (K,) (far field only), t_obs
     (K,) into out (K,)."""
-    scratch = state_scratch()
     for k in range(t_obs.shape[0]):
-        out[k] = retarded_row(record, targets[k], far_distance[k] if far else 0.0, origin,
-                              far, t_obs[k], scratch)
+        out[k] = retarded_row(header, values, targets[k], far_distance[k] if far else 0.0,
+                              origin, far, t_obs[k])
 
 
 @jit
@@ -149,26 +138,28 @@ def ballistic_root(t_obs, target, far_distance, origin, far, r_end, beta_end, in
 
 
 @jit
-def source_span_kernel(record, t_first, t_last, targets, far_distance, origin, far, edge_lo,
-                       edge_hi, extend_none, seen_lo_out, seen_hi_out):
+def source_span_kernel(header, values, t_first, t_last, targets, far_distance, origin, far,
+                       edge_lo, edge_hi, extend_none, seen_lo_out, seen_hi_out):
     """Per point p of targets (P, 3) (observers, or far-field directions at far_distance (P,)
     from origin (3,)), the source times seen_lo_out[p], seen_hi_out[p] whose light reaches
     it at edge_lo[p], edge_hi[p]: the closed form on the ballistic extension before t_first
-    (after t_last), solved on the motion where that root lies after t_first (before
-    t_last); with extend_none clipped to [t_first, t_last]."""
-    ends_r, ends_beta, ends_inv_g2 = record[11], record[12], record[13]
-    scratch = state_scratch()
+    (after t_last), solved on the motion (header, values) where that root lies after
+    t_first (before t_last); with extend_none clipped to [t_first, t_last]."""
+    r_first, r_last = values[header[ENDS_R]:header[ENDS_R] + 3], values[header[ENDS_R] + 3:]
+    b_first = values[header[ENDS_BETA]:header[ENDS_BETA] + 3]
+    b_last = values[header[ENDS_BETA] + 3:]
+    inv_g2 = header[ENDS_INV_G2]
     for p in range(targets.shape[0]):
         target = targets[p]
         distance = far_distance[p] if far else 0.0
-        lo = ballistic_root(edge_lo[p], target, distance, origin, far, ends_r[0],
-                            ends_beta[0], ends_inv_g2[0], t_first)
+        lo = ballistic_root(edge_lo[p], target, distance, origin, far, r_first, b_first,
+                            values[inv_g2], t_first)
         if lo > t_first:
-            lo = retarded_row(record, target, distance, origin, far, edge_lo[p], scratch)
-        hi = ballistic_root(edge_hi[p], target, distance, origin, far, ends_r[1],
-                            ends_beta[1], ends_inv_g2[1], t_last)
+            lo = retarded_row(header, values, target, distance, origin, far, edge_lo[p])
+        hi = ballistic_root(edge_hi[p], target, distance, origin, far, r_last, b_last,
+                            values[inv_g2 + 1], t_last)
         if hi < t_last:
-            hi = retarded_row(record, target, distance, origin, far, edge_hi[p], scratch)
+            hi = retarded_row(header, values, target, distance, origin, far, edge_hi[p])
         if extend_none:
             if lo < t_first:
                 lo = t_first
@@ -179,17 +170,10 @@ def source_span_kernel(record, t_first, t_last, targets, far_distance, origin, f
 
 
 @jit
-def retarded_fields(targets, far_distance, origin, far, t_obs, out, *record):
-    """`retarded_rows` with the record's fields passed last, one by one (a call from Python
-    types a tuple argument slowly)."""
-    retarded_rows(record, targets, far_distance, origin, far, t_obs, out)
-
-
-@jit
-def source_span_fields(targets, far_distance, origin, far, edge_lo, edge_hi, extend_none,
-                       seen_lo_out, seen_hi_out, *record):
-    """`source_span_kernel` with the record's fields passed last, one by one; t_first and
-    t_last are the record's first and last break."""
-    breaks = record[1]
-    source_span_kernel(record, breaks[0], breaks[breaks.shape[0] - 1], targets, far_distance,
-                       origin, far, edge_lo, edge_hi, extend_none, seen_lo_out, seen_hi_out)
+def source_span(header, values, targets, far_distance, origin, far, edge_lo, edge_hi,
+                extend_none, seen_lo_out, seen_hi_out):
+    """`source_span_kernel` with t_first and t_last the motion's first and last break."""
+    first = header[BREAKS]
+    source_span_kernel(header, values, values[first], values[first + header[PIECES]],
+                       targets, far_distance, origin, far, edge_lo, edge_hi, extend_none,
+                       seen_lo_out, seen_hi_out)
