@@ -22,9 +22,9 @@ import numpy as np
 from scipy import integrate
 
 from .constants import COULOMB, EPS0_C
-from .kernels import quadrature
+from .kernels import energy
 from .spectra import fluence as spectral_density
-from .spectra import observed_fields
+from .spectra import kernel_geometry
 
 TABLE_COLUMNS = ("observer", "point", "fluence", "dW_dOmega", "method")
 METHOD_EXACT = "exact, from the source motion"
@@ -39,38 +39,10 @@ def window_energy(t_src_s, t_obs_s, e, kappa, start_s: float, stop_s: float) -> 
     ∫|E|² κ dt′ over the source samples t_src_s (N,) with observer times t_obs_s (N,)
     (non-decreasing), fields e (N, 3) and κ (N,). A window edge between two samples becomes
     a sample of its own, its source time and integrand interpolated linearly in t."""
-    first = int(np.searchsorted(t_obs_s, start_s, side="left"))
-    last = int(np.searchsorted(t_obs_s, stop_s, side="right"))
-    if last <= first:
-        return 0.0
-    t_src_s = np.asarray(t_src_s, dtype=float)
-    density = e**2 * kappa[:, None]
-    times, values = [t_src_s[first:last]], [density[first:last]]
-    if first > 0:
-        cut_t, cut_value = _cut(t_src_s, t_obs_s, density, first - 1, start_s)
-        times.insert(0, cut_t)
-        values.insert(0, cut_value)
-    if last < t_src_s.size:
-        cut_t, cut_value = _cut(t_src_s, t_obs_s, density, last - 1, stop_s)
-        times.append(cut_t)
-        values.append(cut_value)
-    t = np.concatenate(times)
-    if t.size < 2:
-        return 0.0
-    weights = np.empty((3, t.size))
-    corrections = np.empty((3, t.size))
-    quadrature.corrected_trapezoid(t, np.ascontiguousarray(np.concatenate(values)), t[0],
-                                   t[-1], weights, corrections)
-    return float(weights.sum())
-
-
-def _cut(t_src_s, t_obs_s, density, j: int, t_edge_s: float):
-    """(source time (1,), integrand (1, 3)) where light reaches observer time t_edge_s,
-    between samples j and j + 1, by linear interpolation in observer time."""
-    fraction = (t_edge_s - t_obs_s[j]) / (t_obs_s[j + 1] - t_obs_s[j])
-    t_cut = t_src_s[j] + fraction * (t_src_s[j + 1] - t_src_s[j])
-    value = density[j] + fraction * (density[j + 1] - density[j])
-    return np.array([t_cut]), value[None, :]
+    return float(energy.window_energy(
+        np.ascontiguousarray(t_src_s, dtype=float), np.ascontiguousarray(t_obs_s, dtype=float),
+        np.ascontiguousarray(e, dtype=float), np.ascontiguousarray(kappa, dtype=float),
+        float(start_s), float(stop_s)))
 
 
 class FluenceAccumulator:
@@ -95,10 +67,12 @@ class FluenceAccumulator:
         if not self.exact:
             return
         factor = (COULOMB * charge_c) ** 2 * (weight * weight if self.coherent else weight)
-        for p in range(self.group.n_points):
-            t_obs, e, kappa = observed_fields(t, state, self.geometry, p)
-            self.energy[p] += factor * window_energy(t, t_obs, e, kappa, self.start_s[p],
-                                                     self.stop_s[p])
+        energy.window_energies(
+            np.ascontiguousarray(t, dtype=float),
+            *(np.ascontiguousarray(a, dtype=float) for a in state[:4]),
+            *kernel_geometry(self.geometry, self.group.n_points),
+            np.ascontiguousarray(self.start_s), np.ascontiguousarray(self.stop_s),
+            float(factor), self.energy)
 
     def merge(self, other: FluenceAccumulator) -> None:
         """Add another accumulator of the same group (a partial sum of other particles)."""

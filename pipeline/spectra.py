@@ -9,6 +9,12 @@ Fourier sums, evaluated by the route `transforms` predicts to be cheapest (a com
 direct sum or a type-3 NUFFT). The source sampling puts at least SAMPLES_PER_PERIOD
 samples in the period of the top frequency.
 
+Where each particle's window at a point spans few periods of the band's width (far field,
+short pulses) the accumulator instead hands a particle (or the held particles) to one
+compiled call over all points (kernels/point_spectra.py): fields, quadrature and the sums
+by the Jacobi–Anger expansion, whose cost grows with samples × orders rather than samples
+× frequencies, and no Python step per point. `transforms` counts these as "expansion".
+
 In a coherent run the sums are linear in the samples of all particles: the accumulator
 keeps the source samples of several particles and, per point, makes one transform over
 all of them (or one per particle, if that is predicted cheaper), when SPECTRUM_BUFFER_SAMPLES
@@ -24,12 +30,13 @@ import dataclasses
 import numpy as np
 
 from . import transforms
-from .constants import COULOMB, EPS0_C
-from .kernels import pointwise, quadrature
+from .constants import COULOMB, EPS0_C, C
+from .kernels import expansion, point_spectra, pointwise, quadrature
 from .tables import SPECTRUM_COLUMNS, spectra_table
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
 SPECTRUM_BUFFER_SAMPLES = 1_000_000  # source samples (~100 bytes each) held before a transform
+EXPANSION_TABLE_MAX = 2**22  # orders × samples of one particle (8 bytes each, per thread)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -111,6 +118,15 @@ def observed_fields(t, state, geometry, point: int):
     return t_obs, e, kappa
 
 
+def kernel_geometry(geometry, n_points: int) -> tuple:
+    """(far, targets (P, 3), distance_m (P,), origin_m (3,)) of an observers.Geometry as the
+    compiled per-point kernels take them (contiguous; distances 1 in the near field)."""
+    distance = geometry.distance_m if geometry.far else np.ones(n_points)
+    return (bool(geometry.far), np.ascontiguousarray(geometry.targets, dtype=float),
+            np.ascontiguousarray(distance, dtype=float),
+            np.ascontiguousarray(geometry.origin_m, dtype=float))
+
+
 class SpectrumAccumulator:
     """Spectra of one group's points, to which particles' source samples are added.
     `transforms` counts the transforms made by route ("direct", "nufft")."""
@@ -127,6 +143,7 @@ class SpectrumAccumulator:
         self.transforms = collections.Counter()
         self._pending = []  # (t, state, field scale) of particles not yet transformed
         self._pending_samples = 0
+        self._weights = (0, None, None)  # (orders, re, im) of the expansion's band
 
     @property
     def spectrum(self) -> np.ndarray:
@@ -150,6 +167,9 @@ class SpectrumAccumulator:
             if self._pending_samples >= SPECTRUM_BUFFER_SAMPLES:
                 self.flush()
             return
+        if t.size and self._expansion_cheaper([(t, state)], False):
+            self._expansion([(t, state, COULOMB * charge_c)], [weight])
+            return
         for p in range(self.group.n_points):
             single = self._transform(*self._terms(t, state, COULOMB * charge_c, p), None)
             self.fluence[p] += weight * fluence(single)
@@ -160,6 +180,10 @@ class SpectrumAccumulator:
             return
         pending, self._pending, self._pending_samples = self._pending, [], 0
         f = self.settings.frequencies_hz
+        pending = [item for item in pending if item[0].size]
+        if pending and self._expansion_cheaper(pending, True):
+            self._expansion(pending, None)
+            return
         for p in range(self.group.n_points):
             terms = [self._terms(t, state, scale, p) for t, state, scale in pending]
             terms = [(t, values) for t, values in terms if t.size]
@@ -176,6 +200,76 @@ class SpectrumAccumulator:
             else:
                 for (t, values), route in zip(terms, routes, strict=True):
                     self._spectrum[p] += self._transform(t, values, route)
+
+    def _half_spans(self, batch) -> list:
+        """Per particle of batch [(t, state, …)], half its longest observer-time span over
+        the points (observer time is monotonic in source time, so its end samples give
+        it; a window cuts it shorter), with a margin for rounding."""
+        n_p = self.group.n_points
+        window = np.broadcast_to(self.stop_s, (n_p,)) - np.broadcast_to(self.start_s, (n_p,))
+        geometry = self.geometry
+        halves = []
+        for t, state, *_ in batch:
+            ends = state[0][[0, -1]]
+            if geometry.far:
+                delay = -(ends - geometry.origin_m) @ geometry.targets.T / C
+            else:
+                offset = geometry.targets[None, :, :] - ends[:, None, :]
+                delay = np.sqrt(np.einsum("epi,epi->ep", offset, offset)) / C
+            span = (t[-1] - t[0]) + delay[1] - delay[0]
+            halves.append(float(np.max(np.minimum(span, window))) * 0.5 * 1.01)
+        return halves
+
+    def _expansion_cheaper(self, batch, coherent) -> bool:
+        """Whether the expansion over all points is predicted cheaper than the transforms
+        (per particle, or for the coherent sum the cheaper of together and each)."""
+        f = self.settings.frequencies_hz
+        model = transforms.COST
+        halves = self._half_spans(batch)
+        counts = [item[0].size for item in batch]
+        orders = [transforms.expansion_orders(f, half) for half in halves]
+        if max(orders) * max(counts) > EXPANSION_TABLE_MAX:
+            return False
+        expansion_s = sum(model.expansion_s(n, f.size, order)
+                          for n, order in zip(counts, orders, strict=True))
+        each_s = sum(transforms.predicted_s(n, f, 2.0 * half,
+                                            transforms.choose(n, f, 2.0 * half, model), model)
+                     for n, half in zip(counts, halves, strict=True))
+        if coherent:
+            total = int(sum(counts))
+            span = 2.0 * max(halves)
+            each_s = min(each_s, transforms.predicted_s(
+                total, f, span, transforms.choose(total, f, span, model), model))
+        return expansion_s <= each_s
+
+    def _expansion(self, batch, weights) -> None:
+        """Add the particles of batch [(t, state, field scale)] at every point in one
+        compiled call; weights: per particle, for the incoherent fluence (else None)."""
+        f = self.settings.frequencies_hz
+        centre, half_width = transforms.expansion_band(f)
+        orders = transforms.expansion_orders(f, max(self._half_spans(batch)))
+        if orders > self._weights[0]:
+            omega = 2.0 * np.pi * f
+            self._weights = (orders, *expansion.chebyshev_weights(omega, centre,
+                                                                  half_width, orders))
+        _, weights_re, weights_im = self._weights
+        t = np.concatenate([b[0] for b in batch])
+        state = [np.ascontiguousarray(np.concatenate([b[1][i] for b in batch]), dtype=float)
+                 for i in range(4)]
+        offsets = np.cumsum([0] + [b[0].size for b in batch]).astype(np.int64)
+        scales = np.array([b[2] for b in batch], dtype=float)
+        coherent = weights is None
+        fluence_weights = np.zeros(len(batch)) if coherent else (
+            2.0 * EPS0_C * np.asarray(weights, dtype=float))
+        n_p = self.group.n_points
+        point_spectra.point_spectra(
+            t, *state, offsets, scales, *kernel_geometry(self.geometry, n_p),
+            np.ascontiguousarray(np.broadcast_to(self.start_s, (n_p,)), dtype=float),
+            np.ascontiguousarray(np.broadcast_to(self.stop_s, (n_p,)), dtype=float),
+            2.0 * np.pi * f, 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
+            centre, half_width, weights_re, weights_im, coherent, fluence_weights,
+            self._spectrum, self.fluence)
+        self.transforms["expansion"] += len(batch) * n_p
 
     def _terms(self, t, state, scale, p):
         """(t_obs, values (n, 6)) of one particle's samples at point p, fields × scale."""

@@ -9,6 +9,11 @@ The NUFFT transforms the real vectors in pairs, each pair one complex vector eva
 would pass NUFFT_MEMORY_BYTES is cut into time pieces, each transformed alone (the sum is
 additive), and the cost model counts the pieces. The constants of the cost model were
 fitted on a 2-core machine by tests/benchmarks/bench_spectra.py, which prints them.
+
+A third route, the Jacobi–Anger expansion (kernels/expansion.py), costs samples × orders
+plus frequencies × orders, the orders set by the window's span × the band's width: the
+spectra accumulator takes it for short windows (far field), where it beats both
+(`CostModel.expansion_s`, constants from tests/benchmarks/bench_spectra.py).
 """
 
 from __future__ import annotations
@@ -19,7 +24,7 @@ import threading
 
 import numpy as np
 
-from .kernels import fourier
+from .kernels import expansion, fourier
 
 NUFFT_TOLERANCE = 1e-11  # with upsampfac 2: about 1e-11 of the peak (bench_spectra.py)
 NUFFT_UPSAMPLING = 2.0  # finufft upsampfac; 1.25 cannot reach 1e-10 (kernel width)
@@ -54,6 +59,8 @@ class CostModel:
     nufft_per_sample_log_s: float  # sorting and spreading the N samples: × N·log2(N)
     nufft_per_frequency_s: float  # interpolation and deconvolution
     nufft_per_grid_log_s: float  # the FFT of the fine grid of G points: × G·log2(G)
+    expansion_per_sample_order_s: float = 4.49e-09  # Bessel table and moments: × N·orders
+    expansion_per_frequency_order_s: float = 1.57e-09  # the Chebyshev sums: × F·orders
 
     def direct_s(self, n_samples: int, n_frequencies: int) -> float:
         return self.direct_per_term_s * n_samples * n_frequencies
@@ -65,6 +72,11 @@ class CostModel:
         return (pieces * (self.nufft_fixed_s + self.nufft_per_frequency_s * frequencies_hz.size
                           + self.nufft_per_grid_log_s * _n_log(piece_grid))
                 + self.nufft_per_sample_log_s * _n_log(n_samples))
+
+    def expansion_s(self, n_samples: int, n_frequencies: int, orders: int) -> float:
+        """One window by the Jacobi–Anger expansion (kernels/expansion.py)."""
+        return orders * (self.expansion_per_sample_order_s * n_samples
+                         + self.expansion_per_frequency_order_s * n_frequencies)
 
 
 def _n_log(count: float) -> float:
@@ -94,6 +106,18 @@ def choose(n_samples: int, frequencies_hz: np.ndarray, span_s: float,
     """"direct" or "nufft": the route predicted to be faster (a tie goes to "direct")."""
     return min(ROUTES, key=lambda route: predicted_s(n_samples, frequencies_hz, span_s, route,
                                                      model))
+
+
+def expansion_band(frequencies_hz: np.ndarray) -> tuple[float, float]:
+    """(centre, half width) in rad/s of the band the expansion spans (never zero wide)."""
+    omega = 2.0 * np.pi * np.asarray(frequencies_hz, dtype=float)
+    low, high = float(omega.min()), float(omega.max())
+    return 0.5 * (low + high), max(0.5 * (high - low), 1e-300 + 1e-12 * abs(high))
+
+
+def expansion_orders(frequencies_hz: np.ndarray, half_span_s: float) -> int:
+    """Orders the expansion needs for samples within ±half_span_s of their centre."""
+    return int(expansion.orders_for(expansion_band(frequencies_hz)[1] * float(half_span_s)))
 
 
 def fourier_sums(t_s: np.ndarray, values: np.ndarray, frequencies_hz: np.ndarray,

@@ -9,8 +9,12 @@
     a·N·F, the NUFFT as b + c·N·log2(N) + d·F + e·G·log2(G) (non-negative least squares on relative
     errors). The printed constants are those to keep in lagfield/transforms.py (COST),
     followed by the worst relative misprediction of the fit.
-Run: python tests/benchmarks/bench_spectra.py [--fit] (numba on all cores; finufft one
-thread, as in a run).
+(3) --expansion: the Jacobi–Anger expansion (kernels/expansion.py) timed over sample counts
+    N, frequency counts F and window spans (as orders M), fitted as M·(a·N + b·F): the
+    constants expansion_per_sample_order_s, expansion_per_frequency_order_s of
+    transforms.COST, and beside them the NUFFT on the same windows.
+Run: python tests/benchmarks/bench_spectra.py [--fit | --expansion] (numba on all cores;
+finufft one thread, as in a run).
 """
 
 from __future__ import annotations
@@ -98,14 +102,50 @@ def fit(options) -> None:
               f"(model {predicted * 1e3:8.2f} ms)")
 
 
+def expansion_fit(options) -> None:
+    from lagfield.kernels import expansion
+
+    rng = np.random.default_rng(3)
+    rows = []
+    for n, n_f, periods in itertools.product((300, 1_000, 4_000), (50, 200, 800),
+                                             (1.0, 6.0, 30.0)):
+        f = np.linspace(1e15, 2e16, n_f)
+        half = 0.5 * periods / f.max()
+        x = np.sort(rng.uniform(-half, half, n))
+        values = rng.standard_normal((expansion.VECTORS, n))
+        centre, width = transforms.expansion_band(f)
+        orders = transforms.expansion_orders(f, half)
+        w_re, w_im = expansion.chebyshev_weights(2 * np.pi * f, centre, width, orders)
+        table = np.empty((orders + 1, n))
+        out_re, out_im = (np.empty((expansion.VECTORS, n_f)) for _ in range(2))
+        seconds = best_of(options.repeats, expansion.expansion_sums, x, values, centre, width,
+                          w_re, w_im, table, out_re, out_im)
+        nufft_s = best_of(options.repeats, transforms.fourier_sums, x, values.T.copy(), f,
+                          "nufft")
+        rows.append((n, n_f, orders, seconds, nufft_s))
+    r = np.array(rows)
+    design = np.column_stack([r[:, 2] * r[:, 0], r[:, 2] * r[:, 1]]) / r[:, 3:4]
+    coefficients, _ = optimize.nnls(design, np.ones(len(r)))
+    print(f"expansion_per_sample_order_s={coefficients[0]:.3g}, "
+          f"expansion_per_frequency_order_s={coefficients[1]:.3g}; worst misprediction "
+          f"{np.max(np.abs(design @ coefficients - 1)):.0%}")
+    for n, n_f, orders, seconds, nufft_s in rows:
+        print(f"  N={n:5.0f} F={n_f:4.0f} orders={orders:4.0f}: expansion "
+              f"{seconds * 1e3:7.3f} ms, NUFFT {nufft_s * 1e3:7.3f} ms")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--samples", type=int, default=100_000)
     parser.add_argument("--frequencies", type=int, default=1_000)
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--fit", action="store_true", help="time both routes and fit COST")
+    parser.add_argument("--expansion", action="store_true",
+                        help="time the expansion route and fit its COST constants")
     options = parser.parse_args()
-    if options.fit:
+    if options.expansion:
+        expansion_fit(options)
+    elif options.fit:
         fit(options)
     else:
         one_point(options)

@@ -1,0 +1,106 @@
+"""Spectra at every point of a group from particles' source samples, in one compiled call:
+per point (one thread each, particles in order, so results do not depend on the number
+of threads) the pointwise fields, the samples inside the point's window, the weights of
+the corrected trapezoid rule and the Fourier sums by the Jacobi–Anger expansion
+(kernels/expansion.py); added coherently (Ẽ) or incoherently (weighted spectral fluence).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba
+import numpy as np
+
+from ._jit import jit
+from .expansion import VECTORS, expansion_sums
+from .pointwise import fields_far_kappa, fields_near_kappa
+from .quadrature import corrected_trapezoid
+
+
+@jit
+def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
+    """(first, count): the samples inside [start, stop] (t_obs increasing) and, in
+    values[:, :count], the two sums' coefficients of `spectra.quadrature_terms` (fields ×
+    scale, Hann taper when `hann`)."""
+    first = np.searchsorted(t_obs, start, side="left")
+    last = np.searchsorted(t_obs, stop, side="right")
+    count = last - first
+    if count < 2:
+        return first, 0
+    fields = np.empty((count, 3))
+    for j in range(count):
+        taper = scale
+        if hann:
+            taper *= 0.5 - 0.5 * math.cos(2.0 * math.pi * (t_obs[first + j] - start)
+                                          / (stop - start))
+        for c in range(3):
+            fields[j, c] = e[first + j, c] * taper
+    a = np.empty((3, count))
+    b = np.empty((3, count))
+    corrected_trapezoid(t_obs[first:last], fields, start, stop, a, b)
+    for c in range(3):
+        for j in range(count):
+            values[c, j] = a[c, j]
+            values[3 + c, j] = b[c, j] * top_omega
+    return first, count
+
+
+@jit(parallel=True)
+def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, distance_m,
+                  origin_m, start, stop, omega, top_omega, hann, centre, half_width,
+                  weights_re, weights_im, coherent, fluence_weights, spectrum, fluence):
+    """Add the particles' spectra at every point p of targets (P, 3) (far: directions at
+    distance_m (P,) from origin_m (3,)) over observer times [start[p], stop[p]]:
+    Ẽ × scales[i] to spectrum (P, K, 3) complex when `coherent`, else
+    fluence_weights[i] × Σ|Ẽ|² to fluence (P, K). Particle i holds samples
+    offsets[i]:offsets[i + 1] of (t, pos, beta, inv_g2, beta_dot); omega (K,) rad/s in
+    the band of the weights (`expansion.chebyshev_weights` of centre, half_width, with
+    enough orders for the longest window); top_omega: 2π × the top frequency."""
+    n_k = omega.shape[0]
+    most = 0
+    for i in range(offsets.shape[0] - 1):
+        most = max(most, offsets[i + 1] - offsets[i])
+    for p in numba.prange(targets.shape[0]):
+        t_obs = np.empty(most)
+        e = np.empty((most, 3))
+        kappa = np.empty(most)
+        values = np.empty((VECTORS, most))
+        table = np.empty((weights_re.shape[0] + 1, most))
+        out_re = np.empty((VECTORS, n_k))
+        out_im = np.empty((VECTORS, n_k))
+        for i in range(offsets.shape[0] - 1):
+            lo = offsets[i]
+            n = offsets[i + 1] - lo
+            hi = lo + n
+            if far:
+                fields_far_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi],
+                                 beta_dot[lo:hi], targets[p], distance_m[p], origin_m,
+                                 t_obs[:n], e[:n], kappa[:n])
+            else:
+                fields_near_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi],
+                                  beta_dot[lo:hi], targets[p], t_obs[:n], e[:n], kappa[:n])
+            first, count = _window_terms(t_obs[:n], e[:n], start[p], stop[p], scales[i],
+                                         top_omega, hann, values)
+            if count == 0:
+                continue
+            middle = 0.5 * (t_obs[first] + t_obs[first + count - 1])
+            x = t_obs[first:first + count] - middle
+            expansion_sums(x, values[:, :count], centre, half_width, weights_re, weights_im,
+                           table, out_re, out_im)
+            for k in range(n_k):
+                ratio = omega[k] / top_omega if top_omega > 0.0 else 0.0
+                shift = -omega[k] * middle
+                shift_re = math.cos(shift) if coherent else 1.0
+                shift_im = math.sin(shift) if coherent else 0.0
+                power = 0.0
+                for c in range(3):
+                    re = out_re[c, k] + ratio * out_im[3 + c, k]
+                    im = out_im[c, k] - ratio * out_re[3 + c, k]
+                    if coherent:
+                        spectrum[p, k, c] += ((re * shift_re - im * shift_im)
+                                              + 1j * (re * shift_im + im * shift_re))
+                    else:
+                        power += re * re + im * im
+                if not coherent:
+                    fluence[p, k] += fluence_weights[i] * power
