@@ -11,7 +11,6 @@ weight (`accumulate`). This module holds the settings and the driver; the arithm
 from __future__ import annotations
 
 import dataclasses
-import itertools
 
 from .accumulate import SAMPLES_PER_KERNEL_CALL, FieldAccumulator, GroupFields, add_results
 from .motion import checked_motions
@@ -30,6 +29,21 @@ from .spectra import SAMPLES_PER_PERIOD
 from .windows import TrackEnds, arrival_times, group_windows, time_window, track_ends
 
 MOTIONS_PER_BATCH = 256  # tracks whose motions are built together (motion.checked_motions)
+SAMPLES_PER_BATCH = 32_768  # at most this many track samples among them (memory)
+
+
+def _batches(tracks):
+    """Lists of consecutive tracks: MOTIONS_PER_BATCH, or fewer once they hold
+    SAMPLES_PER_BATCH samples (the motions of a batch are alive together)."""
+    batch, samples = [], 0
+    for track in tracks:
+        batch.append(track)
+        samples += track.t_s.size
+        if len(batch) == MOTIONS_PER_BATCH or samples >= SAMPLES_PER_BATCH:
+            yield batch
+            batch, samples = [], 0
+    if batch:
+        yield batch
 
 __all__ = [  # the engine's names, wherever they are defined
     "ANGLE_TOLERANCE", "MAX_REFINEMENTS", "MAX_SAMPLES_PER_PARTICLE", "REACH_DISTANCE_M",
@@ -76,8 +90,7 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, en
         windows = group_windows(groups, ends, settings)
     accumulators = [FieldAccumulator(group, start, n_bins, settings, spectrum)
                     for group, (start, n_bins) in zip(groups, windows, strict=True)]
-    tracks = iter(tracks)
-    while batch := list(itertools.islice(tracks, MOTIONS_PER_BATCH)):
+    for batch in _batches(tracks):
         motions = checked_motions(batch, settings.resolution_s(), path=path,
                                   degree=settings.degree, extend=settings.extend,
                                   smoothing_m=settings.smoothing_m,

@@ -62,6 +62,7 @@ class Finding:
 
 
 AUDIT_BATCH = 256  # tracks the audit checks together (those sharing sample times at once)
+AUDIT_SAMPLES = 32_768  # or fewer, once they hold this many samples (scratch memory)
 
 
 def sampled_velocity(t, positions_m, u, degree: int) -> np.ndarray:
@@ -154,18 +155,20 @@ def _accel_jumps(t, change, step):
 
 class ResolutionAudit:
     """Findings of many tracks, for one aggregated warning (`add` each track). Tracks are
-    checked in batches of AUDIT_BATCH, those sharing sample times together; only the worst
-    track's finding is worded (by `check_resolution`)."""
+    checked in batches of AUDIT_BATCH (or AUDIT_SAMPLES samples), those sharing sample times
+    together; only the worst track's finding is worded (by `check_resolution`)."""
 
     def __init__(self, degree: int = 5):
         self.degree = degree
         self.findings = 0
         self.worst: Finding | None = None
         self._pending = []
+        self._pending_samples = 0
 
     def add(self, track) -> None:
         self._pending.append(track)
-        if len(self._pending) >= AUDIT_BATCH:
+        self._pending_samples += track.t_s.size
+        if len(self._pending) >= AUDIT_BATCH or self._pending_samples >= AUDIT_SAMPLES:
             self._check_pending()
 
     def _check_pending(self) -> None:
@@ -186,6 +189,7 @@ class ResolutionAudit:
             if finding is not None and (self.worst is None or finding.ratio > self.worst.ratio):
                 self.worst = finding
         self._pending = []
+        self._pending_samples = 0
 
     def _worst_ratios(self, tracks) -> np.ndarray:
         """Per track (sharing sample times and kind) its largest ratio of either check."""
