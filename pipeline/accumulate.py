@@ -70,17 +70,16 @@ class FieldAccumulator:
         self._pending = []
         self._pending_samples = 0
         self.source_samples = 0
+        stop_s = start_s + (n_bins - 1) * settings.step_s
         self.spectra = None
         if spectrum is not None:
-            stop_s = start_s + (n_bins - 1) * settings.step_s
             self.spectra = SpectrumAccumulator(group, start_s, stop_s, spectrum, self.geometry)
-        self.fluence = FluenceAccumulator(group, start_s, start_s + (n_bins - 1) * settings.step_s,
-                                          self.geometry, spectrum is None or spectrum.coherent)
+        self.fluence = FluenceAccumulator(group, start_s, stop_s, self.geometry,
+                                          spectrum is None or spectrum.coherent)
 
     def add(self, motion: Motion) -> None:
         edge_lo = self.edge0
         edge_hi = self.edge0 + self.n_bins * self.settings.step_s
-        ends = extension_ends(motion, self.settings.extend)
         span, seen = source_span(motion, self.geometry, edge_lo, edge_hi,
                                  self.settings.extend)
         far = self.geometry.far
@@ -93,6 +92,7 @@ class FieldAccumulator:
         if far:
             t, state = radiation_stops(t, state, motion)
         scale = motion.track.charge_c * motion.track.weight
+        ends = extension_ends(motion, self.settings.extend)
         state, reference = state[:4], state[4:]  # references: observer times keep digits
         if self.spectra is not None:
             self.spectra.add(t, state, motion.track.charge_c, motion.track.weight)

@@ -98,6 +98,13 @@ def hat_weights(t_s: np.ndarray, h_per_s: np.ndarray, step_s: float) -> np.ndarr
     return weights
 
 
+@functools.lru_cache(maxsize=32)
+def _response_weights(response: ImpulseResponse, step_s: float) -> np.ndarray:
+    """hat_weights of a response table (cached: every point of a detector uses the same;
+    the table is hashed by identity)."""
+    return hat_weights(response.t_s, response.h_per_s, step_s)
+
+
 class AnyStep:
     """A chain element that any time step serves (no band edge to check against it)."""
 
@@ -117,7 +124,7 @@ class ImpulseResponse(AnyStep):
     kind = "impulse_response"
 
     def apply(self, samples: np.ndarray, step_s: float) -> np.ndarray:
-        weights = hat_weights(self.t_s, self.h_per_s, step_s)
+        weights = _response_weights(self, step_s)
         samples = np.asarray(samples, dtype=float)
         return signal.convolve(samples, weights)[:samples.size]
 

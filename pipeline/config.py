@@ -18,7 +18,7 @@ from .distributed import check_scheduler_address, check_workers
 from .errors import ConfigError
 from .observers import plane_axes, point_count
 from .tracks import CANONICAL_COLUMNS, DIMENSIONS
-from .typos import edit_distance, nearest  # noqa: F401  (edit_distance: part of this API)
+from .typos import nearest
 from .units import to_si, unit_factor
 
 # every key the run file may hold, per table

@@ -10,6 +10,7 @@ already read and checked, so a bad entry stops the run before any field is compu
 
 from __future__ import annotations
 
+import collections
 import dataclasses
 import math
 import warnings
@@ -313,7 +314,7 @@ def _points(entry: dict, place: str) -> tuple | None:
         raise DetectorError(f"{place}: points must be a non-empty list of point indices")
     for point in points:
         _integer(point, f"{place}: points", 0, 2**62)
-    repeated = sorted({p for p in points if points.count(p) > 1})
+    repeated = sorted(p for p, times in collections.Counter(points).items() if times > 1)
     if repeated:
         raise DetectorError(f"{place}: point {repeated[0]} is listed twice in points")
     return tuple(points)

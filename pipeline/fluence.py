@@ -24,7 +24,7 @@ from scipy import integrate
 from .constants import COULOMB, EPS0_C
 from .kernels import energy
 from .spectra import fluence as spectral_density
-from .spectra import kernel_geometry
+from .spectra import kernel_geometry, window_arrays
 
 TABLE_COLUMNS = ("observer", "point", "fluence", "dW_dOmega", "method")
 METHOD_EXACT = "exact, from the source motion"
@@ -51,9 +51,9 @@ class FluenceAccumulator:
 
     def __init__(self, group, start_s, stop_s, geometry=None, coherent: bool = True):
         self.group = group
-        self.start_s = np.broadcast_to(np.asarray(start_s, dtype=float), (group.n_points,))
-        self.stop_s = np.broadcast_to(np.asarray(stop_s, dtype=float), (group.n_points,))
+        self.start_s, self.stop_s = window_arrays(start_s, stop_s, group.n_points)
         self.geometry = group.geometry(False) if geometry is None else geometry
+        self._kernel = kernel_geometry(self.geometry, group.n_points)
         self.coherent = coherent
         self.energy = np.zeros(group.n_points)  # Σ factor × ∫|E|² dt, V²·s/m²
         self.tracks = 0
@@ -70,9 +70,7 @@ class FluenceAccumulator:
         energy.window_energies(
             np.ascontiguousarray(t, dtype=float),
             *(np.ascontiguousarray(a, dtype=float) for a in state[:4]),
-            *kernel_geometry(self.geometry, self.group.n_points),
-            np.ascontiguousarray(self.start_s), np.ascontiguousarray(self.stop_s),
-            float(factor), self.energy)
+            *self._kernel, self.start_s, self.stop_s, float(factor), self.energy)
 
     def merge(self, other: FluenceAccumulator) -> None:
         """Add another accumulator of the same group (a partial sum of other particles)."""
@@ -85,9 +83,9 @@ class FluenceAccumulator:
 
 
 # ---------------------------------------------------------------------------- lower bounds
-def bin_fluence(e_v_per_m, n_bins, step_s: float) -> np.ndarray:
-    """ε0 c step Σ|Ē|² (P,) of bin averages e (P, max_bins, 3), zero past n_bins[p]."""
-    del n_bins  # bins past n_bins[p] hold zeros
+def bin_fluence(e_v_per_m, step_s: float) -> np.ndarray:
+    """ε0 c step Σ|Ē|² (P,) of bin averages e (P, max_bins, 3) (zero past each point's
+    bins)."""
     return EPS0_C * step_s * np.einsum("pki,pki->p", e_v_per_m, e_v_per_m)
 
 
@@ -104,7 +102,7 @@ def group_fluence(result):
     if exact is not None:
         coherent = result.fluence.coherent
         return exact, METHOD_EXACT if coherent else METHOD_EXACT_INCOHERENT
-    bins = bin_fluence(result.e_v_per_m, result.n_bins, result.step_s)
+    bins = bin_fluence(result.e_v_per_m, result.step_s)
     spectra = result.spectra
     if spectra is None or spectra.settings.frequencies_hz.size < 2:
         return bins, METHOD_BINS

@@ -48,13 +48,13 @@ import math
 
 import numpy as np
 from numpy.polynomial import chebyshev
-from scipy import constants, interpolate
+from scipy import interpolate
 
+from .constants import C
 from .errors import MotionError
 from .kernels import motion as kernels
 from .tracks import Track
 
-C = constants.c
 SPEED_CHECKS_PER_INTERVAL = 8
 # Slip allowed, as a fraction of the time scale the run resolves (the step, or a quarter of
 # the period of the top frequency: FieldSettings.resolution_s). A slip δ is how far the
@@ -539,26 +539,21 @@ class SlipReport:
 
 
 def slip_report(motion: Motion) -> SlipReport | None:
-    """The slip of a track with momenta (None for a positions-only track)."""
+    """The slip of a track with momenta (None for a positions-only track): `slip_reports`
+    of the motion as a group of one."""
     if not motion.has_momentum:
         return None
-    chord = float(np.linalg.norm(motion.chord_m, axis=1).sum())
-    integral = float(np.linalg.norm(motion.integral_m, axis=1).sum())
-    speed_ratio = chord / integral if integral > 0.0 else (math.inf if chord > 0.0 else math.nan)
-    t = np.asarray(motion.track.t_s, dtype=float)
-    change = np.diff(motion.evaluate(t)[1], axis=0)  # Δβ_i; δβ is zero at the samples
-    weight = float(np.sum(change * change))
-    along = float(np.sum(motion.raw_slip_s * change))
-    total = float(np.sum(motion.raw_slip_s**2))
-    offset = -along / weight if weight > 0.0 else 0.0
-    explained = along * along / (weight * total) if weight > 0.0 and total > 0.0 else 0.0
-    return SlipReport(motion.particle, t, np.linalg.norm(motion.raw_slip_s, axis=1),
-                      speed_ratio, offset, explained, float(np.median(np.diff(t))))
+    header, values = motion.record
+    alone = _Group([motion], np.zeros(1, dtype=np.int64), np.asarray(motion.track.t_s,
+                                                                      dtype=float),
+                   (header, values[None]), motion.raw_slip_s[None], motion.chord_m[None],
+                   motion.integral_m[None])
+    return _slip_figures(alone)[0][0]
 
 
-def slip_reports(group: _Group, resolution_s: float) -> tuple[list[SlipReport], np.ndarray]:
-    """`slip_report` of every motion of a group with momenta, vectorised, and (G,) True
-    for those near a limit of `check_slip` (CHECK_MARGIN), to be checked alone."""
+def _slip_figures(group: _Group) -> tuple:
+    """(reports, speed ratio, offset, explained, slip_s (G, n−1), step_s) of every motion
+    of a group with momenta (`SlipReport`), vectorised."""
     chord = np.linalg.norm(group.chord_m, axis=2).sum(axis=1)
     integral = np.linalg.norm(group.integral_m, axis=2).sum(axis=1)
     change = np.empty(group.chord_m.shape)  # Δβ_i; δβ is zero at the samples
@@ -579,6 +574,13 @@ def slip_reports(group: _Group, resolution_s: float) -> tuple[list[SlipReport], 
                           slip_s[g], float(ratio[g]), float(offset[g]), float(explained[g]),
                           step_s)
                for g, motion in enumerate(group.motions)]
+    return reports, ratio, offset, explained, slip_s, step_s
+
+
+def slip_reports(group: _Group, resolution_s: float) -> tuple[list[SlipReport], np.ndarray]:
+    """`slip_report` of every motion of a group with momenta, vectorised, and (G,) True
+    for those near a limit of `check_slip` (CHECK_MARGIN), to be checked alone."""
+    reports, ratio, offset, explained, slip_s, step_s = _slip_figures(group)
     near = 1.0 - CHECK_MARGIN
     fraction = slip_s.max(axis=1) / resolution_s
     with np.errstate(invalid="ignore"):

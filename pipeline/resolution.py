@@ -25,8 +25,9 @@ import dataclasses
 import math
 
 import numpy as np
-from scipy import constants, interpolate
+from scipy import interpolate
 
+from .constants import C
 from .motion import velocity_of
 from .wording import plural
 
@@ -74,7 +75,7 @@ def sampled_velocity(t, positions_m, u, degree: int) -> np.ndarray:
     k = min(degree, t.size - 1)
     spline = interpolate.make_interp_spline(t, np.asarray(positions_m, dtype=float), k=k,
                                             axis=-2)
-    return spline.derivative(1)(t) / constants.c
+    return spline.derivative(1)(t) / C
 
 
 def check_resolution(track, degree: int = 5) -> Finding | None:

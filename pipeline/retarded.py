@@ -15,7 +15,6 @@ import numpy as np
 
 from .kernels import retarded as kernels
 
-MAX_ITERATIONS = kernels.MAX_ITERATIONS
 _NO_DISTANCES = np.zeros(0)
 
 

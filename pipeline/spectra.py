@@ -30,7 +30,7 @@ import dataclasses
 import numpy as np
 
 from . import transforms
-from .constants import COULOMB, EPS0_C, C
+from .constants import COULOMB, EPS0_C
 from .kernels import expansion, point_spectra, pointwise, quadrature
 from .tables import SPECTRUM_COLUMNS, spectra_table
 
@@ -63,10 +63,10 @@ def quadrature_terms(t_obs_s, e_v_per_m, start_s, stop_s, top_hz, taper="none"):
     t = t_obs_s[first:last]
     e = e_v_per_m[first:last]
     if t.size < 2:
-        return t[:0], np.empty((0, 6))
+        return t[:0], np.empty((0, transforms.N_VECTORS))
     if taper == "hann":
         e = e * (0.5 - 0.5 * np.cos(2.0 * np.pi * (t - start_s) / (stop_s - start_s)))[:, None]
-    ab = np.empty((6, t.size))
+    ab = np.empty((transforms.N_VECTORS, t.size))
     quadrature.corrected_trapezoid(t, np.ascontiguousarray(e), start_s, stop_s, ab[:3], ab[3:])
     ab[3:] *= 2.0 * np.pi * top_hz
     return t, ab.T
@@ -109,12 +109,13 @@ def fluence(spectrum: np.ndarray) -> np.ndarray:
     return 2.0 * EPS0_C * np.sum(np.abs(spectrum) ** 2, axis=-1)
 
 
-def observed_fields(t, state, geometry, point: int):
+def observed_fields(t, state, kernel, point: int):
     """(t_obs (N,), E per q/(4πε0) (N, 3), κ (N,)) of the source samples (t, state = (pos,
-    beta, inv_g2, beta_dot)) at one point of an observers.Geometry."""
+    beta, inv_g2, beta_dot)) at one point of a geometry given as `kernel_geometry` gives it."""
+    far, targets, distance_m, origin_m = kernel
     t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
-    pointwise.point_fields(t, state, point, geometry.far, geometry.targets, geometry.distance_m,
-                           geometry.origin_m, t_obs, e, kappa)
+    pointwise.fields_kappa(t, *state[:4], far, targets[point], distance_m[point], origin_m,
+                           t_obs, e, kappa)
     return t_obs, e, kappa
 
 
@@ -127,6 +128,13 @@ def kernel_geometry(geometry, n_points: int) -> tuple:
             np.ascontiguousarray(geometry.origin_m, dtype=float))
 
 
+def window_arrays(start_s, stop_s, n_points: int) -> tuple:
+    """(start (P,), stop (P,)) s of the points' windows, contiguous, as the compiled per-point
+    kernels take them (a scalar applies to every point)."""
+    return tuple(np.ascontiguousarray(np.broadcast_to(np.asarray(v, dtype=float), (n_points,)))
+                 for v in (start_s, stop_s))
+
+
 class SpectrumAccumulator:
     """Spectra of one group's points, to which particles' source samples are added.
     `transforms` counts the transforms made by route ("direct", "nufft")."""
@@ -137,6 +145,8 @@ class SpectrumAccumulator:
         self.stop_s = stop_s
         self.settings = settings
         self.geometry = group.geometry(False) if geometry is None else geometry
+        self._kernel = kernel_geometry(self.geometry, group.n_points)
+        self._window_s = window_arrays(start_s, stop_s, group.n_points)
         n_f = settings.frequencies_hz.size
         self._spectrum = np.zeros((group.n_points, n_f, 3), dtype=complex)
         self.fluence = np.zeros((group.n_points, n_f))
@@ -167,9 +177,12 @@ class SpectrumAccumulator:
             if self._pending_samples >= SPECTRUM_BUFFER_SAMPLES:
                 self.flush()
             return
-        if t.size and self._expansion_cheaper([(t, state)], False):
-            self._expansion([(t, state, COULOMB * charge_c)], [weight])
-            return
+        if t.size:
+            batch = [(t, state, COULOMB * charge_c)]
+            halves = self._half_spans(batch)
+            if self._expansion_cheaper(batch, halves, False):
+                self._expansion(batch, halves, [weight])
+                return
         for p in range(self.group.n_points):
             single = self._transform(*self._terms(t, state, COULOMB * charge_c, p), None)
             self.fluence[p] += weight * fluence(single)
@@ -181,8 +194,9 @@ class SpectrumAccumulator:
         pending, self._pending, self._pending_samples = self._pending, [], 0
         f = self.settings.frequencies_hz
         pending = [item for item in pending if item[0].size]
-        if pending and self._expansion_cheaper(pending, True):
-            self._expansion(pending, None)
+        halves = self._half_spans(pending)
+        if pending and self._expansion_cheaper(pending, halves, True):
+            self._expansion(pending, halves, None)
             return
         for p in range(self.group.n_points):
             terms = [self._terms(t, state, scale, p) for t, state, scale in pending]
@@ -207,25 +221,19 @@ class SpectrumAccumulator:
         it; a window cuts it shorter), with a margin for rounding."""
         n_p = self.group.n_points
         window = np.broadcast_to(self.stop_s, (n_p,)) - np.broadcast_to(self.start_s, (n_p,))
-        geometry = self.geometry
         halves = []
         for t, state, *_ in batch:
-            ends = state[0][[0, -1]]
-            if geometry.far:
-                delay = -(ends - geometry.origin_m) @ geometry.targets.T / C
-            else:
-                offset = geometry.targets[None, :, :] - ends[:, None, :]
-                delay = np.sqrt(np.einsum("epi,epi->ep", offset, offset)) / C
+            delay = self.geometry.light_delay_s(state[0][[0, -1]])
             span = (t[-1] - t[0]) + delay[1] - delay[0]
             halves.append(float(np.max(np.minimum(span, window))) * 0.5 * 1.01)
         return halves
 
-    def _expansion_cheaper(self, batch, coherent) -> bool:
+    def _expansion_cheaper(self, batch, halves, coherent) -> bool:
         """Whether the expansion over all points is predicted cheaper than the transforms
-        (per particle, or for the coherent sum the cheaper of together and each)."""
+        (per particle, or for the coherent sum the cheaper of together and each); halves:
+        `_half_spans` of batch."""
         f = self.settings.frequencies_hz
         model = transforms.COST
-        halves = self._half_spans(batch)
         counts = [item[0].size for item in batch]
         orders = [transforms.expansion_orders(f, half) for half in halves]
         if max(orders) * max(counts) > EXPANSION_TABLE_MAX:
@@ -242,12 +250,13 @@ class SpectrumAccumulator:
                 total, f, span, transforms.choose(total, f, span, model), model))
         return expansion_s <= each_s
 
-    def _expansion(self, batch, weights) -> None:
-        """Add the particles of batch [(t, state, field scale)] at every point in one
-        compiled call; weights: per particle, for the incoherent fluence (else None)."""
+    def _expansion(self, batch, halves, weights) -> None:
+        """Add the particles of batch [(t, state, field scale)] (`_half_spans`: halves) at
+        every point in one compiled call; weights: per particle, for the incoherent fluence
+        (else None)."""
         f = self.settings.frequencies_hz
         centre, half_width = transforms.expansion_band(f)
-        orders = transforms.expansion_orders(f, max(self._half_spans(batch)))
+        orders = transforms.expansion_orders(f, max(halves))
         if orders > self._weights[0]:
             omega = 2.0 * np.pi * f
             self._weights = (orders, *expansion.chebyshev_weights(omega, centre,
@@ -261,19 +270,16 @@ class SpectrumAccumulator:
         coherent = weights is None
         fluence_weights = np.zeros(len(batch)) if coherent else (
             2.0 * EPS0_C * np.asarray(weights, dtype=float))
-        n_p = self.group.n_points
         point_spectra.point_spectra(
-            t, *state, offsets, scales, *kernel_geometry(self.geometry, n_p),
-            np.ascontiguousarray(np.broadcast_to(self.start_s, (n_p,)), dtype=float),
-            np.ascontiguousarray(np.broadcast_to(self.stop_s, (n_p,)), dtype=float),
+            t, *state, offsets, scales, *self._kernel, *self._window_s,
             2.0 * np.pi * f, 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
             centre, half_width, weights_re, weights_im, coherent, fluence_weights,
             self._spectrum, self.fluence)
-        self.transforms["expansion"] += len(batch) * n_p
+        self.transforms["expansion"] += len(batch) * self.group.n_points
 
     def _terms(self, t, state, scale, p):
         """(t_obs, values (n, 6)) of one particle's samples at point p, fields × scale."""
-        t_obs, e, _ = observed_fields(t, state, self.geometry, p)
+        t_obs, e, _ = observed_fields(t, state, self._kernel, p)
         return quadrature_terms(t_obs, e * scale, self.start_s[p], self.stop_s[p],
                                 self.settings.frequencies_hz.max(), self.settings.taper)
 

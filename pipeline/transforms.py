@@ -32,7 +32,7 @@ NUFFT_BYTES_PER_GRID_POINT = 4 * 16  # complex fine grid; peak ~4 grids (bench_b
 NUFFT_MEMORY_BYTES = 32 * 2**20  # one transform's fine grids (larger grids also run slower
 # per point, out of cache: bench_spectra.py); a longer span is cut in pieces
 ROUTES = ("direct", "nufft")
-N_VECTORS = 6  # the sums of one spectrum: 3 components × 2 quadrature terms
+N_VECTORS = expansion.VECTORS  # the sums of one spectrum: 3 components × 2 quadrature terms
 
 
 def nufft_grid_points(span_s: float, low_hz: float, high_hz: float) -> float:

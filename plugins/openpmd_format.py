@@ -20,6 +20,7 @@ import numpy as np
 from scipy import constants
 
 import lagfield
+from lagfield.tracks import MOMENTUM_COLUMNS
 
 NAME = "openpmd"
 OPTION_KEYS = ("species", "iterations")
@@ -29,8 +30,7 @@ EXTENSIONS = (".h5", *ADIOS_SUFFIXES)
 _EXPANSION = re.compile(r"%0?\d*T")  # the iteration number in a file-based series name
 _NOT_THERE = ("no file of the openPMD series is there (a series of one file per iteration "
               "is named with %T for the iteration number, e.g. data_%T.h5)")
-AXES = ("x", "y", "z")
-MOMENTUM_COLUMNS = ("ux", "uy", "uz")
+AXES = ("x", "y", "z")  # openPMD component names, also the position columns
 # unitDimension exponents of (length, mass, time, current, temperature, amount, intensity)
 LENGTH = (1.0, 0.0, 0.0, 0.0, 0.0, 0.0, 0.0)
 MOMENTUM = (1.0, 1.0, -1.0, 0.0, 0.0, 0.0, 0.0)
@@ -323,19 +323,20 @@ class OpenPmdImporter:
         weight = None if pending["weighting"] is None else _si(pending["weighting"])[:, 0]
         columns = {"particle": ids, "t": np.full(n, it.time_s + it.time_offset_s("position"))}
         columns.update(zip(AXES, position.T, strict=True))
+        charge = (None if pending["charge"] is None
+                  else it.single("charge", _si(pending["charge"])[:, 0], weight))
         if pending["momentum"] is not None:
             momentum = it.single("momentum", _si(pending["momentum"]), weight)
             if pending.get("mass") is not None:
                 mass = it.single("mass", _si(pending["mass"])[:, 0], weight)
             else:
-                charge = it.single("charge", _si(pending["charge"])[:, 0], weight)
                 mass = charge / _si(pending["chargeToMass"])[:, 0]
             u = momentum / (mass * constants.c)[:, None]
             columns.update(zip(MOMENTUM_COLUMNS, u.T, strict=True))
         if weight is not None:
             columns["weight"] = weight
-        if pending["charge"] is not None:
-            columns["charge"] = it.single("charge", _si(pending["charge"])[:, 0], weight)
+        if charge is not None:
+            columns["charge"] = charge
         return columns
 
 

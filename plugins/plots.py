@@ -360,9 +360,11 @@ def pick_unit(scale: float, units) -> tuple[str, float]:
     return units[-1]
 
 
-def _format_quantity(value: float, units) -> str:
+def _format_quantity(value: float, units, digits: int = 6) -> str:
+    """`value` in the largest unit of `units` it is at least one of (the last for 0), to
+    `digits` significant digits."""
     name, factor = pick_unit(value, units) if value else units[-1]
-    return f"{value / factor:.6g} {name}"
+    return f"{value / factor:.{digits}g} {name}"
 
 
 def time_scale(times_s: np.ndarray) -> tuple[float, float, str]:
@@ -447,6 +449,13 @@ def _save(figure, directory: pathlib.Path, file_name: str, dpi: float) -> str:
     FigureCanvasAgg(figure)
     figure.savefig(directory / file_name, dpi=dpi, format="png")
     return file_name
+
+
+def _footer(figure, text: str | None, width_chars: int) -> None:
+    """The run's safety note, wrapped to `width_chars`, in small grey type below the plots."""
+    if text:
+        figure.supxlabel("\n".join(textwrap.wrap(text, width_chars)), fontsize="small",
+                         color="0.35")
 
 
 def _sci(axis, which="y"):
@@ -547,9 +556,7 @@ def plot_map(name, layout: GridLayout, values: np.ndarray, what: str, note: str,
     lines = [f"{name}: {what}", *textwrap.wrap(note, width),
              *textwrap.wrap(_geometry_note(layout), width)]
     figure.suptitle("\n".join(lines), fontsize="medium")
-    if footer:
-        figure.supxlabel("\n".join(textwrap.wrap(footer, int(width * 1.2))), fontsize="small",
-                         color="0.35")
+    _footer(figure, footer, int(width * 1.2))
     return figure
 
 
@@ -593,12 +600,6 @@ def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks, spac
     return figure
 
 
-def _si_text(value: float, units) -> str:
-    """A value in the largest unit of `units` it is at least one of, 4 significant digits."""
-    name, factor = pick_unit(value, units)
-    return f"{value / factor:.4g} {name}"
-
-
 def describe_detector(record: dict | None) -> str:
     """One line on a detector from its run.json record: sensor (and load), chain, digitizer."""
     if not record:
@@ -606,9 +607,9 @@ def describe_detector(record: dict | None) -> str:
     sensor = record["sensor"]
     if sensor["kind"] == "electrode":
         text = f"electrode {sensor['area_m2'] * 1e6:.3g} mm², n̂ = {_vector(sensor['normal'])}"
-        load = [_si_text(sensor["resistance_ohm"], OHM_UNITS)
+        load = [_format_quantity(sensor["resistance_ohm"], OHM_UNITS, 4)
                 if sensor["resistance_ohm"] is not None else None,
-                _si_text(sensor["capacitance_f"], FARAD_UNITS)
+                _format_quantity(sensor["capacitance_f"], FARAD_UNITS, 4)
                 if sensor["capacitance_f"] else None]
         text += ", load " + " ‖ ".join(part for part in load if part)
     elif sensor["kind"] == "effective_length":
@@ -619,7 +620,7 @@ def describe_detector(record: dict | None) -> str:
         text += "; chain: " + " → ".join(element["kind"] for element in record["chain"])
     digitizer = record.get("digitizer")
     if digitizer:
-        rate = _si_text(digitizer["rate_hz"], FREQUENCY_UNITS).replace("Hz", "S/s")
+        rate = _format_quantity(digitizer["rate_hz"], FREQUENCY_UNITS, 4).replace("Hz", "S/s")
         text += (f"; digitizer {rate}, "
                  f"{digitizer['bits']} bits, ±{digitizer['range_v'][1]:.4g} V")
     return text
@@ -657,8 +658,7 @@ def plot_detector_traces(names, voltages, digitized, records, max_curves, footer
         ax.ticklabel_format(axis="x", useOffset=False)
     axes[-1].set_xlabel(time_label)
     figure.suptitle("detector voltages: analog on the field's time grid and digitized")
-    if footer:
-        figure.supxlabel("\n".join(textwrap.wrap(footer, 130)), fontsize="small", color="0.35")
+    _footer(figure, footer, 130)
     return figure
 
 
@@ -775,8 +775,8 @@ class PlotExporter:
             note = "∫F df over the band (trapezoid rule on the computed frequencies)"
             share = band_share(values, total) if total is not None else None
             if share is not None:
-                note += (f"; band / total: {100 * share[0]:.3g}–{100 * share[1]:.3g}\u00a0% "
-                         f"(total: {energy[2]})")
+                note += (f"; band / total: {100 * share[0]:.3g}–{100 * share[1]:.3g}\u00a0%; "
+                         f"total {energy[2]}")
             figure = plot_map(name, layout, values, what, note, per_sr, plan["footer"])
             written.append(_save(figure, directory, f"{stem}_band_map.png", settings.dpi))
         return written

@@ -12,6 +12,7 @@ import pytest
 from lagfield import config
 from lagfield.cli import main
 from lagfield.errors import ConfigError, UnitError
+from lagfield.typos import edit_distance
 
 BASE = {
     "tracks": {"path": "tracks.csv", "charge": "-1 e"},
@@ -182,10 +183,10 @@ def test_plane_with_slightly_skewed_axes_within_tolerance(tmp_path):
 
 # ---------------------------------------------------------------------------- typo hints
 def test_transposition_counts_as_one_edit():
-    assert config.edit_distance("stpe", "step") == 1
-    assert config.edit_distance("stpe", "stop") == 2
-    assert config.edit_distance("", "abc") == 3
-    assert config.edit_distance("kitten", "sitting") == 3  # the textbook Levenshtein example
+    assert edit_distance("stpe", "step") == 1
+    assert edit_distance("stpe", "stop") == 2
+    assert edit_distance("", "abc") == 3
+    assert edit_distance("kitten", "sitting") == 3  # Levenshtein's standard example (from memory)
 
 
 def test_nearest_key_prefers_the_transposed_one():

@@ -62,7 +62,8 @@ def test_well_sampled_circle(tmp_path, registry):
     assert report["time_span_s"]["stop"] == pytest.approx(199 * step_s, rel=1e-12)
     assert report["lorentz_factor"]["min"] == pytest.approx(gamma, rel=1e-9)
     assert report["lorentz_factor"]["from"] == "ux, uy, uz"
-    # centripetal acceleration of uniform circular motion: v² / R
+    # centripetal acceleration of uniform circular motion: v² / R (Feynman, Leighton and
+    # Sands, The Feynman Lectures on Physics, vol. I, sec. 11-7; from memory)
     beta2 = 1 - 1 / gamma**2
     assert report["peak_acceleration_m_s2"] == pytest.approx(beta2 * C**2 / radius_m, rel=1e-2)
     bend = report["strongest_bend"]
@@ -78,7 +79,8 @@ def test_well_sampled_circle(tmp_path, registry):
 def test_straight_track_has_nothing_to_resolve(tmp_path, registry):
     beta = 0.99
     report = inspect(tmp_path, registry, line(0, beta, 1e-12, 50))
-    # γ = 1 / sqrt(1 - β²) from the chord speed of a straight, uniform track
+    # γ = 1 / sqrt(1 - β²) from the chord speed of a straight, uniform track (Jackson,
+    # Classical Electrodynamics, 3rd ed., sec. 11.3; from memory)
     assert report["lorentz_factor"]["max"] == pytest.approx(1 / math.sqrt(1 - beta**2),
                                                             rel=1e-9)
     assert report["strongest_bend"] is None and report["n_straight"] == 1

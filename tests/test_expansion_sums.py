@@ -78,7 +78,7 @@ def test_expansion_cost_grows_with_orders_not_frequencies():
 def _helix_spectra(monkeypatch, coherent: bool, route_expansion: bool, taper: str,
                    far: bool):
     monkeypatch.setattr(spectra.SpectrumAccumulator, "_expansion_cheaper",
-                        lambda self, batch, coherent: route_expansion)
+                        lambda self, batch, halves, coherent: route_expansion)
     tracks = [_helix_track(i, 0.7 * i) for i in range(3)]
     f = np.linspace(2e10, 1e12, 40)
     settings = FieldSettings(step_s=1e-13, far_field=far, max_frequency_hz=float(f.max()))

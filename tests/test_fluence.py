@@ -162,8 +162,10 @@ def wide_band(scenario: Scenario, top_factor: float, count: int) -> SpectrumSett
 def test_exact_fluence_satisfies_parseval_on_the_shipped_scenarios(request, name, top_factor,
                                                                    count, rtol):
     """Parseval's theorem (Plancherel): ∫₀^∞ F df = ε0 c ∫|E|² dt with F = 2 ε0 c |Ẽ|²
-    (SPEC's convention). The spectrum over a wide band, resolved well in frequency and
-    integrated by the trapezoid rule, must give the fluence from the source samples."""
+    (SPEC's convention; the same one-sided form as Jackson, Classical Electrodynamics,
+    3rd ed., eqs. 14.51–14.53, equation numbers from memory). The spectrum over a wide
+    band, resolved well in frequency and integrated by the trapezoid rule, must give the
+    fluence from the source samples."""
     scenario = request.getfixturevalue(name)
     spectrum = wide_band(scenario, top_factor, count)
     for result in scenario.compute(spectrum=spectrum):
@@ -185,7 +187,7 @@ def test_bin_averages_approach_the_exact_fluence_from_below(request, name, worst
     for divisor in (1, 2, 4, 8, 16):
         result = scenario.compute(step_divisor=divisor)[-1]
         exact = result.fluence.fluence_j_per_m2()
-        bins = fluence_module.bin_fluence(result.e_v_per_m, result.n_bins, result.step_s)
+        bins = fluence_module.bin_fluence(result.e_v_per_m, result.step_s)
         deficits.append(1.0 - bins / exact)
     deficits = np.array(deficits)
     assert np.all(deficits > 0)

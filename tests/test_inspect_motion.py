@@ -237,7 +237,9 @@ def test_undersampled_oscillation_is_found():
 
 def test_strongest_bend_of_the_shipped_hard_edge_dipole():
     """sample_data/bend: ρ = γmc/(eB) = 1.7045 m and f_c = 3.3591e14 Hz (sample_data/
-    README.md, make_samples.py); the samples' bend within 2 %, not the spline's overshoot."""
+    README.md, make_samples.py; the radius of gyration: Jackson, Classical Electrodynamics,
+    3rd ed., sec. 12.2, from memory; f_c = 3γ³c/(4πρ): eq. 14.85); the samples' bend within
+    2 %, not the spline's overshoot."""
     report = inspect_tracks(ROOT / "sample_data" / "bend" / "tracks.parquet")
     bend = report["strongest_bend"]
     assert bend["radius_m"] == pytest.approx(1.7045, rel=0.02)

@@ -140,9 +140,6 @@ def _anchor(geometry_p, far, ends, m, e):
     t_e = ends[m, e, END_T]
     if not math.isfinite(t_e):
         return t_e, t_e, 0.0, 1.0
-    dx = geometry_p[0] - ends[m, e, END_X]
-    dy = geometry_p[1] - ends[m, e, END_X + 1]
-    dz = geometry_p[2] - ends[m, e, END_X + 2]
     if far:
         nx = geometry_p[0]
         ny = geometry_p[1]
@@ -153,6 +150,9 @@ def _anchor(geometry_p, far, ends, m, e):
         delay = (geometry_p[3] - projected) / C
         r = 0.0
     else:
+        dx = geometry_p[0] - ends[m, e, END_X]
+        dy = geometry_p[1] - ends[m, e, END_X + 1]
+        dz = geometry_p[2] - ends[m, e, END_X + 2]
         r = math.sqrt(dx * dx + dy * dy + dz * dz)
         nx = dx / r
         ny = dy / r
@@ -254,15 +254,15 @@ def _reference(geometry_p, far, soa, i):
     """(observer time T_i of sample i's reference, R_i; 0 in the far field) for one point
     (see `_times`)."""
     t_ref = soa[RT * CHUNK_ROW + i]
-    x0, x0_lo = _two_sum(geometry_p[0], -soa[RX * CHUNK_ROW + i])
-    y0, y0_lo = _two_sum(geometry_p[1], -soa[RY * CHUNK_ROW + i])
-    z0, z0_lo = _two_sum(geometry_p[2], -soa[RZ * CHUNK_ROW + i])
     if far:
         projected = (geometry_p[0] * (soa[RX * CHUNK_ROW + i] - geometry_p[4])
                      + geometry_p[1] * (soa[RY * CHUNK_ROW + i] - geometry_p[5])
                      + geometry_p[2] * (soa[RZ * CHUNK_ROW + i] - geometry_p[6]))
         delay = geometry_p[3] - projected
-        return _light_time(t_ref, (x0, 0.0), (y0, 0.0), (z0, 0.0), True, delay), 0.0
+        return _light_time(t_ref, (0.0, 0.0), (0.0, 0.0), (0.0, 0.0), True, delay), 0.0
+    x0, x0_lo = _two_sum(geometry_p[0], -soa[RX * CHUNK_ROW + i])
+    y0, y0_lo = _two_sum(geometry_p[1], -soa[RY * CHUNK_ROW + i])
+    z0, z0_lo = _two_sum(geometry_p[2], -soa[RZ * CHUNK_ROW + i])
     r0 = math.sqrt(x0 * x0 + y0 * y0 + z0 * z0)
     return _light_time(t_ref, (x0, x0_lo), (y0, y0_lo), (z0, z0_lo), False, 0.0), r0
 

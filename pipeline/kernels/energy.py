@@ -10,7 +10,7 @@ import numba
 import numpy as np
 
 from ._jit import jit
-from .pointwise import fields_far_kappa, fields_near_kappa
+from .pointwise import fields_kappa
 from .quadrature import corrected_trapezoid
 
 
@@ -61,9 +61,6 @@ def window_energies(t, pos, beta, inv_g2, beta_dot, far, targets, distance_m, or
         t_obs = np.empty(n)
         e = np.empty((n, 3))
         kappa = np.empty(n)
-        if far:
-            fields_far_kappa(t, pos, beta, inv_g2, beta_dot, targets[p], distance_m[p],
-                             origin_m, t_obs, e, kappa)
-        else:
-            fields_near_kappa(t, pos, beta, inv_g2, beta_dot, targets[p], t_obs, e, kappa)
+        fields_kappa(t, pos, beta, inv_g2, beta_dot, far, targets[p], distance_m[p], origin_m,
+                     t_obs, e, kappa)
         out[p] += factor * window_energy(t, t_obs, e, kappa, start[p], stop[p])

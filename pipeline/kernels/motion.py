@@ -34,8 +34,8 @@ import math
 
 import numpy as np
 
+from ..constants import C
 from ._jit import jit
-from .pointwise import C
 
 # the evaluators of a row are inlined into their callers (numba IR): a call passing arrays
 # costs more than the row's arithmetic

@@ -14,7 +14,7 @@ import numpy as np
 
 from ._jit import jit
 from .expansion import VECTORS, expansion_sums
-from .pointwise import fields_far_kappa, fields_near_kappa
+from .pointwise import fields_kappa
 from .quadrature import corrected_trapezoid
 
 
@@ -58,6 +58,10 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
     the band of the weights (`expansion.chebyshev_weights` of centre, half_width, with
     enough orders for the longest window); top_omega: 2π × the top frequency."""
     n_k = omega.shape[0]
+    ratio = np.zeros(n_k)  # ω/ω_top: the second sum's weight (f = 0 alone: 0)
+    if top_omega > 0.0:
+        for k in range(n_k):
+            ratio[k] = omega[k] / top_omega
     most = 0
     for i in range(offsets.shape[0] - 1):
         most = max(most, offsets[i + 1] - offsets[i])
@@ -73,13 +77,8 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
             lo = offsets[i]
             n = offsets[i + 1] - lo
             hi = lo + n
-            if far:
-                fields_far_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi],
-                                 beta_dot[lo:hi], targets[p], distance_m[p], origin_m,
-                                 t_obs[:n], e[:n], kappa[:n])
-            else:
-                fields_near_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi],
-                                  beta_dot[lo:hi], targets[p], t_obs[:n], e[:n], kappa[:n])
+            fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
+                         targets[p], distance_m[p], origin_m, t_obs[:n], e[:n], kappa[:n])
             first, count = _window_terms(t_obs[:n], e[:n], start[p], stop[p], scales[i],
                                          top_omega, hann, values)
             if count == 0:
@@ -89,14 +88,13 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
             expansion_sums(x, values[:, :count], centre, half_width, weights_re, weights_im,
                            table, out_re, out_im)
             for k in range(n_k):
-                ratio = omega[k] / top_omega if top_omega > 0.0 else 0.0
                 shift = -omega[k] * middle
                 shift_re = math.cos(shift) if coherent else 1.0
                 shift_im = math.sin(shift) if coherent else 0.0
                 power = 0.0
                 for c in range(3):
-                    re = out_re[c, k] + ratio * out_im[3 + c, k]
-                    im = out_im[c, k] - ratio * out_re[3 + c, k]
+                    re = out_re[c, k] + ratio[k] * out_im[3 + c, k]
+                    im = out_im[c, k] - ratio[k] * out_re[3 + c, k]
                     if coherent:
                         spectrum[p, k, c] += ((re * shift_re - im * shift_im)
                                               + 1j * (re * shift_im + im * shift_re))

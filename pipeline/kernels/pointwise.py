@@ -81,15 +81,14 @@ def fields_far_kappa(t, pos, beta, inv_g2, beta_dot, direction, distance, origin
         t_obs[j] = t[j] + (distance - projected) / C
 
 
-def point_fields(t, state, point: int, far: bool, targets, distance_m, origin_m, t_obs, e_out,
+@jit
+def fields_kappa(t, pos, beta, inv_g2, beta_dot, far, target, distance, origin, t_obs, e_out,
                  kappa_out):
-    """Fill t_obs, e_out (per q/4πε0) and kappa_out of the samples (t, state = (pos, beta,
-    inv_g2, beta_dot)) at observer point `point`: near field at targets[point] (m), or, when
-    `far`, the far field in direction targets[point] at distance_m[point] from origin_m (3,)."""
-    pos, beta, inv_g2, beta_dot = state
+    """Fill t_obs, e_out (per q/4πε0) and kappa_out of the samples (t, pos, beta, inv_g2,
+    beta_dot) at one point: near field at target (3,) m, or, when `far`, the far field in
+    direction target at `distance` (m) from origin (3,)."""
     if far:
-        fields_far_kappa(t, pos, beta, inv_g2, beta_dot, targets[point], distance_m[point],
-                         origin_m, t_obs, e_out, kappa_out)
+        fields_far_kappa(t, pos, beta, inv_g2, beta_dot, target, distance, origin, t_obs,
+                         e_out, kappa_out)
     else:
-        fields_near_kappa(t, pos, beta, inv_g2, beta_dot, targets[point], t_obs, e_out,
-                          kappa_out)
+        fields_near_kappa(t, pos, beta, inv_g2, beta_dot, target, t_obs, e_out, kappa_out)

@@ -138,13 +138,16 @@ def ballistic_root(t_obs, target, far_distance, origin, far, r_end, beta_end, in
 
 
 @jit
-def source_span_kernel(header, values, t_first, t_last, targets, far_distance, origin, far,
-                       edge_lo, edge_hi, extend_none, seen_lo_out, seen_hi_out):
+def source_span(header, values, targets, far_distance, origin, far, edge_lo, edge_hi,
+                extend_none, seen_lo_out, seen_hi_out):
     """Per point p of targets (P, 3) (observers, or far-field directions at far_distance (P,)
     from origin (3,)), the source times seen_lo_out[p], seen_hi_out[p] whose light reaches
-    it at edge_lo[p], edge_hi[p]: the closed form on the ballistic extension before t_first
-    (after t_last), solved on the motion (header, values) where that root lies after
-    t_first (before t_last); with extend_none clipped to [t_first, t_last]."""
+    it at edge_lo[p], edge_hi[p]: the closed form on the ballistic extension before the
+    motion's first break t_first (after its last, t_last), solved on the motion (header,
+    values) where that root lies after t_first (before t_last); with extend_none clipped to
+    [t_first, t_last]."""
+    t_first = values[header[BREAKS]]
+    t_last = values[header[BREAKS] + header[PIECES]]
     r_first, r_last = values[header[ENDS_R]:header[ENDS_R] + 3], values[header[ENDS_R] + 3:]
     b_first = values[header[ENDS_BETA]:header[ENDS_BETA] + 3]
     b_last = values[header[ENDS_BETA] + 3:]
@@ -167,13 +170,3 @@ def source_span_kernel(header, values, t_first, t_last, targets, far_distance, o
                 hi = t_last
         seen_lo_out[p] = lo
         seen_hi_out[p] = hi
-
-
-@jit
-def source_span(header, values, targets, far_distance, origin, far, edge_lo, edge_hi,
-                extend_none, seen_lo_out, seen_hi_out):
-    """`source_span_kernel` with t_first and t_last the motion's first and last break."""
-    first = header[BREAKS]
-    source_span_kernel(header, values, values[first], values[first + header[PIECES]],
-                       targets, far_distance, origin, far, edge_lo, edge_hi, extend_none,
-                       seen_lo_out, seen_hi_out)

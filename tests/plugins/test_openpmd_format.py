@@ -155,6 +155,26 @@ def test_series_imports_the_analytic_helix(series_path):
         assert track.weight == 2.5 and track.charge_c == -constants.e
 
 
+def test_momenta_from_charge_to_mass_when_the_mass_record_is_absent(tmp_path):
+    """Without 'mass', m = charge / chargeToMass turns momentum into γβ: the same analytic
+    helix momenta to 1e-12 (relative to γ)."""
+    def charge_to_mass(k, particles):
+        del particles["mass"]
+        particles["chargeToMass"].unit_dimension = {io.Unit_Dimension.M: -1,
+                                                    io.Unit_Dimension.I: 1,
+                                                    io.Unit_Dimension.T: 1}
+        n = particles["id"][SCALAR].shape[0]
+        constant(particles["chargeToMass"][SCALAR], -constants.e / M_E, n)
+
+    tracks = read_tracks(write_series(tmp_path / "q_over_m.h5", tweak=charge_to_mass))
+    dt = step_s()
+    for track in tracks:
+        steps = [k for k in range(N_STEPS) if present(track.particle, k)]
+        _, u = helix(np.array(steps) * dt - dt / 2, PHASES[track.particle])
+        np.testing.assert_allclose(track.u, u, rtol=1e-12, atol=1e-12 * GAMMA)
+        assert track.charge_c == -constants.e
+
+
 def test_file_based_series_and_iteration_range(tmp_path):
     """A series of one file per iteration (data_%T.h5) reads the same; `iterations` keeps
     only the iterations asked for (both ends included)."""

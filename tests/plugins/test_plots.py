@@ -79,7 +79,9 @@ def pulse_rows(name, amplitudes, arrivals_s):
 
 def spectrum_rows(name, amplitudes, f_hz, radius_m=None):
     """F(f) = 2 ε0 c |Ẽ|² of the pulses: Ẽ = A τ √π exp(−(π f τ)²) · POLARISATION
-    (Fourier transform of a Gaussian, SPEC's sign convention; the phase drops out of F)."""
+    (Fourier transform of a Gaussian, as in tables of integrals, e.g. Abramowitz & Stegun,
+    Handbook of Mathematical Functions, ch. 7, from memory; SPEC's sign convention; the
+    phase drops out of F)."""
     rows = []
     for point, amp in enumerate(amplitudes):
         spectrum = amp * TAU_S * math.sqrt(math.pi) * np.exp(-(math.pi * f_hz * TAU_S) ** 2)
@@ -160,9 +162,10 @@ def test_dpi_option_scales_the_image(tmp_path, signals):
 
 def test_plane_fluence_grid_matches_the_pulse_energy(signals):
     """ε0 c ∫|E|² dt of E = A g(t)·p: A² |p|² τ √(π/2) (Gaussian integral
-    ∫ exp(−2x²/τ²) dx = τ √(π/2)). With τ = 4 steps the sum over samples equals the
-    integral up to the rectangle-rule error ~ exp(−π²τ²/(2 step²)) ≈ e^-79; what is left is
-    the rounding of t − t0 at t ≈ 33 ns (a few 1e-12 relative), hence rtol 1e-10 there."""
+    ∫ exp(−2x²/τ²) dx = τ √(π/2), Abramowitz & Stegun ch. 7, from memory). With τ = 4
+    steps the sum over samples equals the integral up to the rectangle-rule error
+    ~ exp(−π²τ²/(2 step²)) ≈ e^-79; what is left is the rounding of t − t0 at t ≈ 33 ns
+    (a few 1e-12 relative), hence rtol 1e-10 there."""
     observers, fields = group(signals.observers, "screen"), group(signals.fields, "screen")
     u_mm, v_mm, fluence = plots.fluence_grid(observers, fields)
     a, b, _, _ = plane_points()
