@@ -88,7 +88,8 @@ class FieldAccumulator:
             if span is None:
                 return  # the window sees only extensions: no radiation
         t, state = source_samples(motion, self.group, self.geometry, span,
-                                  self.settings.resolution_s(), seen)
+                                  self.settings.sampling_resolution_s(), seen,
+                                  bin_s=self.settings.step_s)
         if far:
             t, state = radiation_stops(t, state, motion)
         scale = motion.track.charge_c * motion.track.weight
@@ -127,10 +128,14 @@ class FieldAccumulator:
         self._pending_samples = 0
 
     def result(self) -> GroupFields:
+        """The group's fields; the accumulator is spent (its bin integrals become the fields,
+        scaled in place: a copy of a large grid costs more than the deposit)."""
         self.flush()
         step = self.settings.step_s
-        e = self.integrals[:, :, :3] * (COULOMB / step)
-        b = self.integrals[:, :, 3:] * (COULOMB / (C * step))
+        fields, self.integrals = self.integrals, None
+        fields[:, :, :3] *= COULOMB / step
+        fields[:, :, 3:] *= COULOMB / (C * step)
+        e, b = fields[:, :, :3], fields[:, :, 3:]
         return GroupFields(self.group, step, self.start_s, self.n_bins, e, b, self.spectra,
                            self.fluence, source_samples=self.source_samples)
 

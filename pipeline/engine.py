@@ -11,6 +11,7 @@ weight (`accumulate`). This module holds the settings and the driver; the arithm
 from __future__ import annotations
 
 import dataclasses
+import math
 
 from .accumulate import SAMPLES_PER_KERNEL_CALL, FieldAccumulator, GroupFields, add_results
 from .motion import checked_motions
@@ -72,6 +73,16 @@ class FieldSettings:
         if not self.max_frequency_hz:
             return self.step_s
         return min(self.step_s, SAMPLES_PER_BIN / (SAMPLES_PER_PERIOD * self.max_frequency_hz))
+
+    def sampling_resolution_s(self) -> float:
+        """Observer-time scale in which the source samples must put SAMPLES_PER_BIN samples:
+        with spectra, a fraction of the period of the top frequency (their quadrature needs
+        the phase resolved); for fields alone none (inf): a bin integral is the exact
+        primitive interpolated between samples, so the samples need only follow the field's
+        own variation, which the distance and angle limits of `kernels.sampling` do."""
+        if not self.max_frequency_hz:
+            return math.inf
+        return SAMPLES_PER_BIN / (SAMPLES_PER_PERIOD * self.max_frequency_hz)
 
 
 def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, ends=None,

@@ -36,15 +36,16 @@ def source_span(motion: Motion, geometry, edge_lo, edge_hi, extend: str):
 
 
 def source_samples(motion: Motion, group, geometry, span, resolution_s: float, seen, *,
-                   per_bin=SAMPLES_PER_BIN, tolerance=ANGLE_TOLERANCE,
+                   bin_s: float | None = None, per_bin=SAMPLES_PER_BIN, tolerance=ANGLE_TOLERANCE,
                    subdivisions=SUBDIVISIONS_PER_INTERVAL, uniform_split_max=UNIFORM_SPLIT_MAX,
                    max_samples=MAX_SAMPLES_PER_PARTICLE, max_refinements=MAX_REFINEMENTS,
                    reach_m=REACH_DISTANCE_M):
     """(t (N,), (pos, beta, inv_g2, beta_dot, ref_t, ref_r, disp)): source times, refined
     until no step exceeds what the observer bins, the distance and the local κ allow
     (kernels/refine.py), and the motion at them with its references (as
-    `Motion.evaluate_referenced`), resolving observer times resolution_s (see
-    `engine.FieldSettings.resolution_s`) at the points of `geometry` over span (t_lo, t_hi).
+    `Motion.evaluate_referenced`), resolving observer times resolution_s (inf: none; see
+    `engine.FieldSettings.sampling_resolution_s`) and bins of bin_s (default resolution_s;
+    see `kernels.sampling`) at the points of `geometry` over span (t_lo, t_hi).
     `seen` (seen_lo (P,), seen_hi (P,)): the source times whose light each point sees in
     its window; only there does a point's distance limit the step and count for the reach
     check. Where the sampled track meets its extension the sample is doubled (zero
@@ -55,7 +56,8 @@ def source_samples(motion: Motion, group, geometry, span, resolution_s: float, s
         *motion.record, np.ascontiguousarray(motion.track.t_s, dtype=float), float(span[0]),
         float(span[1]), int(subdivisions), np.ascontiguousarray(geometry.targets, dtype=float),
         np.ascontiguousarray(seen[0], dtype=float), np.ascontiguousarray(seen[1], dtype=float),
-        bool(geometry.far), float(resolution_s), float(per_bin), float(tolerance),
+        bool(geometry.far), float(resolution_s),
+        float(resolution_s if bin_s is None else bin_s), float(per_bin), float(tolerance),
         int(uniform_split_max), int(max_samples), int(max_refinements), float(reach_m))
     if status == refine.OK:
         return t, motion_kernels.state_columns(state)

@@ -294,11 +294,14 @@ def test_ctrl_c_in_a_terminal_during_the_computation(tmp_path):
         '[[observers]]\nname = "g0"\npoints = [[0.05, 0.0, 0.0]]',
         '[[observers]]\nname = "g0"\nplane = { center = [0.05, 0, 0], u = [0, 1, 0], '
         'v = [0, 0, 1], size = ["2 cm", "2 cm"], shape = [4, 8] }\n\n[spectrum]\n'
-        'frequencies = { start = "1 GHz", stop = "5 THz", count = 50000 }'))
+        'frequencies = { start = "1 GHz", stop = "5 THz", count = 200000 }'))
     leader, follower = os.openpty()
     fcntl.ioctl(follower, termios.TIOCSWINSZ, struct.pack("HHHH", 24, 100, 0, 0))
+    # SIGINT as a terminal delivers it, even when the tests run from a background shell
+    # (which starts its children with SIGINT ignored)
     process = subprocess.Popen([sys.executable, "-m", "lagfield", "run", str(run_file)],
-                               stdin=follower, stdout=follower, stderr=follower)
+                               stdin=follower, stdout=follower, stderr=follower,
+                               preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     os.close(follower)
     output = b""
     deadline = time.monotonic() + 120

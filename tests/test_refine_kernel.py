@@ -56,7 +56,7 @@ def twin_initial(knots, t_lo, t_hi, subdivisions):
 def twin_limits(state, before, after, geometry, seen, resolution_s, rules):
     out = np.empty(before.size)
     sampling.source_step_limits(*state[:4], before, after, geometry.targets, seen[0], seen[1],
-                                geometry.far, resolution_s, rules["per_bin"],
+                                geometry.far, resolution_s, resolution_s, rules["per_bin"],
                                 rules["tolerance"], out)
     return out
 

@@ -154,11 +154,14 @@ def test_killed_run_leaves_no_tables(tmp_path, how):
     # a run long enough to be caught midway: a fine step and a long frequency list
     run_file = write_run(tmp_path, step='"0.02 ps"', extra="""
 [spectrum]
-frequencies = { start = "1 GHz", stop = "5 THz", count = 50000 }
+frequencies = { start = "1 GHz", stop = "5 THz", count = 200000 }
 """, observers='plane = { center = [0.05, 0, 0], u = [0, 1, 0], v = [0, 0, 1], '
                  'size = ["2 cm", "2 cm"], shape = [4, 8] }')
+    # SIGINT as a terminal delivers it, even when the tests run from a background shell
+    # (which starts its children with SIGINT ignored)
     process = subprocess.Popen([sys.executable, "-m", "lagfield.cli", "run", str(run_file)],
-                               stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+                               stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                               preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     time.sleep(5.0)
     assert process.poll() is None, "the run ended before it could be interrupted"
     process.send_signal(how)

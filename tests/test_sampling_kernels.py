@@ -27,7 +27,7 @@ def test_serial_and_parallel_drivers_agree_exactly():
     before = np.concatenate([t[:1], t[:-1]])
     after = np.concatenate([t[1:], t[-1:]])
     args = (pos, beta, inv_g2, beta_dot, before, after, points, seen_lo, seen_hi, False,
-            1e-12, 4.0, 0.02)
+            1e-12, 1e-12, 4.0, 0.02)
     serial = np.empty(t.size)
     parallel = np.empty(t.size)
     sampling._limits_serial(*args, serial)

@@ -98,11 +98,11 @@ def _zero_acceleration(state, j):
 
 @jit(inline=True)
 def _limit(j, state, before, after, targets, seen_lo, seen_hi, far_field, resolution_s,
-           per_bin, tolerance):
+           bin_s, per_bin, tolerance):
     return _step_limit_here(j, state[:, POS:POS + 3], state[:, BETA:BETA + 3],
                             state[:, INV_G2], state[:, BETA_DOT:BETA_DOT + 3], before, after,
-                            targets, seen_lo, seen_hi, far_field, resolution_s, per_bin,
-                            tolerance)
+                            targets, seen_lo, seen_hi, far_field, resolution_s, bin_s,
+                            per_bin, tolerance)
 
 
 @jit
@@ -164,7 +164,7 @@ def _double_track_ends(t, state, n, t_first, t_last):
 
 @jit
 def refine(header, values, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
-           far_field, resolution_s, per_bin, tolerance, uniform_split_max, max_samples,
+           far_field, resolution_s, bin_s, per_bin, tolerance, uniform_split_max, max_samples,
            max_depth, reach_m):
     """Refined source times over [t_lo, t_hi] of the motion (header, values) (of the track
     sampled at knots_s (n,) s) and the motion at them:
@@ -172,7 +172,8 @@ def refine(header, values, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, 
 
     targets (P, 3): points in m, or unit directions when far_field; seen_lo, seen_hi (P,) s:
     the source times whose light reaches point p within its window; resolution_s: the
-    observer-time scale to resolve; per_bin, tolerance: see `sampling`. status: OK,
+    observer-time scale to resolve (inf: none); bin_s: the observer bin; per_bin,
+    tolerance: see `sampling`. status: OK,
     TOO_MANY_SAMPLES, NOT_SETTLED or REACHES_POINT (point and its closest approach
     distance_m given; -1 and inf otherwise). On a failure the arrays are empty."""
     start = initial_times(knots_s, t_lo, t_hi, subdivisions)
@@ -187,7 +188,7 @@ def refine(header, values, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, 
         after[j] = start[min(j + 1, n_start - 1)]
     for j in range(n_start):
         limits[j] = _limit(j, initial, before, after, targets, seen_lo, seen_hi, far_field,
-                           resolution_s, per_bin, tolerance)
+                           resolution_s, bin_s, per_bin, tolerance)
     empty = start[:0]
     empty_state = _new_state(0)
     if not far_field:
@@ -268,7 +269,8 @@ def refine(header, values, knots_s, t_lo, t_hi, subdivisions, targets, seen_lo, 
             stack_after[top] = t_new + part
             state_into(header, values, t_new, stack, top)
             stack_limit[top] = _limit(top, stack, stack_before, stack_after, targets, seen_lo,
-                                      seen_hi, far_field, resolution_s, per_bin, tolerance)
+                                      seen_hi, far_field, resolution_s, bin_s, per_bin,
+                                      tolerance)
             top += 1
     if not settled:
         return NOT_SETTLED, empty, empty_state, -1, np.inf

@@ -3,7 +3,18 @@ close a track comes to the points that see it.
 
 At a source sample the allowed source-time step is the smallest, over the observer
 points, of
-  - step_s / (per_bin · κ): at least `per_bin` samples per observer bin (dt = κ dt′);
+  - resolution_s / (per_bin · κ): at least `per_bin` samples per observer-time scale
+    resolution_s (dt = κ dt′): the phase of the top frequency when spectra are asked (their
+    quadrature needs it); inf for fields alone;
+  - bin_s / (per_bin · κ): `per_bin` samples per observer bin, relaxed where the point
+    sees the sample's neighbourhood to (BIN_ACCURACY · bin_s / κ)^¼ · τ^¾ when that is
+    larger, τ the smaller of the source-time scales R/c and √(2κ)/|β̇| of the next two
+    limits. A bin average is the difference of the primitive, interpolated by a cubic
+    Hermite polynomial between samples, at two bin edges, divided by the bin bin_s; with
+    a field varying on the observer-time scale κτ that interpolation errs by about
+    (κh)⁴/(384 (κτ)³ bin_s) of the field for a source step h, which the relaxed limit
+    keeps below BIN_ACCURACY/384 however many bins a step spans: slowly varying fields,
+    such as the Coulomb field of a distant extension, need few samples;
   - tolerance · R / c (near field), where the point sees the sample's neighbourhood within
     its time window: n turns and R changes by at most `tolerance` of itself;
   - tolerance · √(2κ) / |β̇|: the angle between n and β changes by at most `tolerance`
@@ -29,11 +40,12 @@ from ._jit import jit
 from .kappa import kappa
 
 PARALLEL_MIN_WORK = 200_000  # samples × points below which the serial drivers run
+BIN_ACCURACY = 1e-9  # see the module docstring
 
 
 @jit
 def _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
-                seen_hi, far_field, step, per_bin, tolerance):
+                seen_hi, far_field, resolution_s, bin_s, per_bin, tolerance):
     """Allowed source-time step (s) at sample j: the minimum over the points seeing it."""
     bx = beta[j, 0]
     by = beta[j, 1]
@@ -55,44 +67,54 @@ def _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers, se
             ny = dy / r
             nz = dz / r
         k = kappa(nx, ny, nz, bx, by, bz, inv_g2[j])
-        limit = min(limit, step / (per_bin * k))
-        if t_after[j] >= seen_lo[p] and t_before[j] <= seen_hi[p]:
-            limit = min(limit, tolerance * r / C)
+        limit = min(limit, resolution_s / (per_bin * k))
+        scale = math.inf  # τ, the source-time scale of the field's variation
         if accel > 0.0:
-            limit = min(limit, tolerance * math.sqrt(2.0 * k) / accel)
+            scale = math.sqrt(2.0 * k) / accel
+        per_bin_limit = bin_s / (per_bin * k)
+        if t_after[j] >= seen_lo[p] and t_before[j] <= seen_hi[p]:
+            scale = min(scale, r / C)
+            limit = min(limit, tolerance * scale,
+                        max(per_bin_limit,
+                            math.sqrt(math.sqrt(BIN_ACCURACY * bin_s / k)) * scale ** 0.75))
+        else:
+            limit = min(limit, tolerance * scale, per_bin_limit)
     return limit
 
 
 @jit
 def _limits_serial(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
-                   seen_hi, far_field, step, per_bin, tolerance, out):
+                   seen_hi, far_field, resolution_s, bin_s, per_bin, tolerance, out):
     for j in range(pos.shape[0]):
         out[j] = _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers,
-                             seen_lo, seen_hi, far_field, step, per_bin, tolerance)
+                             seen_lo, seen_hi, far_field, resolution_s, bin_s, per_bin,
+                             tolerance)
 
 
 @jit(parallel=True)
 def _limits_parallel(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
-                     seen_hi, far_field, step, per_bin, tolerance, out):
+                     seen_hi, far_field, resolution_s, bin_s, per_bin, tolerance, out):
     for j in numba.prange(pos.shape[0]):
         out[j] = _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers,
-                             seen_lo, seen_hi, far_field, step, per_bin, tolerance)
+                             seen_lo, seen_hi, far_field, resolution_s, bin_s, per_bin,
+                             tolerance)
 
 
 def source_step_limits(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo,
-                       seen_hi, far_field, step, per_bin, tolerance, out):
+                       seen_hi, far_field, resolution_s, bin_s, per_bin, tolerance, out):
     """out[j] = allowed source-time step (s) at sample j, the minimum over the points that
     see it.
 
     pos (N, 3) m; beta (N, 3); inv_g2 (N,); beta_dot (N, 3) 1/s; t_before, t_after (N,) s:
     the source times of sample j's neighbours (or its own at an end); observers (P, 3):
     points in m, or unit directions when far_field is True; seen_lo, seen_hi (P,) s: the
-    source times whose light reaches point p within its window; step s; out (N,).
+    source times whose light reaches point p within its window; resolution_s, bin_s s (see
+    the module docstring); out (N,).
     """
     driver = (_limits_parallel if pos.shape[0] * observers.shape[0] >= PARALLEL_MIN_WORK
               else _limits_serial)
     driver(pos, beta, inv_g2, beta_dot, t_before, t_after, observers, seen_lo, seen_hi,
-           far_field, step, per_bin, tolerance, out)
+           far_field, resolution_s, bin_s, per_bin, tolerance, out)
 
 
 @jit
