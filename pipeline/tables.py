@@ -9,6 +9,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from .kernels import layout
+
 FIELD_COLUMNS = ("Ex", "Ey", "Ez", "Bx", "By", "Bz")
 SPECTRUM_COLUMNS = ("Ex_re", "Ex_im", "Ey_re", "Ey_im", "Ez_re", "Ez_im")
 
@@ -54,21 +56,11 @@ def frame(names, counts, parts) -> pd.DataFrame:
 
 def _fill_fields(result, block, points) -> None:
     """Write one GroupFields into `block` (rows t, Ex … Bz) and `points`, point by point
-    (bins past n_bins dropped): one strided copy per run of points of equal length."""
+    (bins past n_bins dropped), in one compiled pass (kernels/layout.py)."""
     n_bins = np.asarray(result.n_bins, dtype=np.int64)
-    start_s = np.asarray(result.start_s, dtype=np.float64)
-    bin_index = np.arange(int(n_bins.max(initial=0)), dtype=np.float64)
-    firsts = np.flatnonzero(np.r_[True, n_bins[1:] != n_bins[:-1]])  # runs of equal n_bins
-    row = 0
-    for p0, p1 in zip(firsts.tolist(), np.r_[firsts[1:], n_bins.size].tolist(), strict=True):
-        n = int(n_bins[p0])
-        stop = row + (p1 - p0) * n
-        shaped = block[:, row:stop].reshape(block.shape[0], p1 - p0, n)
-        np.add(start_s[p0:p1, None], result.step_s * bin_index[:n], out=shaped[0])
-        shaped[1:4] = result.e_v_per_m[p0:p1, :n].transpose(2, 0, 1)
-        shaped[4:7] = result.b_t[p0:p1, :n].transpose(2, 0, 1)
-        points[row:stop].reshape(p1 - p0, n)[...] = np.arange(p0, p1)[:, None]
-        row = stop
+    first_row = np.concatenate([[0], np.cumsum(n_bins)[:-1]]).astype(np.int64)
+    layout.fill_fields(np.asarray(result.start_s, dtype=np.float64), float(result.step_s),
+                       n_bins, result.e_v_per_m, result.b_t, first_row, block, points)
 
 
 def fields_table(results) -> pd.DataFrame:
