@@ -95,9 +95,11 @@ class FieldAccumulator:
         scale = motion.track.charge_c * motion.track.weight
         ends = extension_ends(motion, self.settings.extend)
         state, reference = state[:4], state[4:]  # references: observer times keep digits
-        if self.spectra is not None:
-            self.spectra.add(t, state, motion.track.charge_c, motion.track.weight)
-        self.fluence.add(t, state, motion.track.charge_c, motion.track.weight)
+        charge_c, weight = motion.track.charge_c, motion.track.weight
+        folded = (self.spectra is not None
+                  and self.spectra.add(t, state, charge_c, weight, exact=self.fluence))
+        if not folded:
+            self.fluence.add(t, state, charge_c, weight)
         self._pending.append((t, state, scale, ends, reference))
         self._pending_samples += t.size
         self.source_samples += t.size

@@ -62,11 +62,19 @@ class FluenceAccumulator:
     def exact(self) -> bool:
         return not self.coherent or self.tracks <= 1
 
-    def add(self, t, state, charge_c: float, weight: float) -> None:
+    def claim(self, charge_c: float, weight: float) -> float:
+        """Count a track whose ∫|E|² dt another kernel adds to `energy` (over the same
+        windows and geometry); returns the factor it must be added with (0: none, the sum
+        is no longer exact)."""
         self.tracks += 1
         if not self.exact:
+            return 0.0
+        return (COULOMB * charge_c) ** 2 * (weight * weight if self.coherent else weight)
+
+    def add(self, t, state, charge_c: float, weight: float) -> None:
+        factor = self.claim(charge_c, weight)
+        if factor == 0.0:
             return
-        factor = (COULOMB * charge_c) ** 2 * (weight * weight if self.coherent else weight)
         energy.window_energies(
             np.ascontiguousarray(t, dtype=float),
             *(np.ascontiguousarray(a, dtype=float) for a in state[:4]),

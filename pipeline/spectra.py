@@ -170,22 +170,28 @@ class SpectrumAccumulator:
         self.flush()
         return dict(self.__dict__)
 
-    def add(self, t, state, charge_c: float, weight: float) -> None:
+    def add(self, t, state, charge_c: float, weight: float, exact=None) -> bool:
+        """Add one particle's samples; True when its exact ∫|E|² dt went to `exact` (a
+        fluence.FluenceAccumulator of the same windows and geometry) on the way."""
         if self.settings.coherent:
             self._pending.append((t, state, COULOMB * charge_c * weight))
             self._pending_samples += t.size
             if self._pending_samples >= SPECTRUM_BUFFER_SAMPLES:
                 self.flush()
-            return
+            return False
         if t.size:
             batch = [(t, state, COULOMB * charge_c)]
             halves = self._half_spans(batch)
             if self._expansion_cheaper(batch, halves, False):
-                self._expansion(batch, halves, [weight])
-                return
+                energy = None
+                if exact is not None:
+                    energy = (np.array([exact.claim(charge_c, weight)]), exact.energy)
+                self._expansion(batch, halves, [weight], energy)
+                return exact is not None
         for p in range(self.group.n_points):
             single = self._transform(*self._terms(t, state, COULOMB * charge_c, p), None)
             self.fluence[p] += weight * fluence(single)
+        return False
 
     def flush(self) -> None:
         """Transform the held particles' samples into the coherent spectra."""
@@ -250,10 +256,10 @@ class SpectrumAccumulator:
                 total, f, span, transforms.choose(total, f, span, model), model))
         return expansion_s <= each_s
 
-    def _expansion(self, batch, halves, weights) -> None:
+    def _expansion(self, batch, halves, weights, energy=None) -> None:
         """Add the particles of batch [(t, state, field scale)] (`_half_spans`: halves) at
         every point in one compiled call; weights: per particle, for the incoherent fluence
-        (else None)."""
+        (else None); energy: (factors per particle, out (P,)) to add their ∫|E|² dt to."""
         f = self.settings.frequencies_hz
         centre, half_width = transforms.expansion_band(f)
         orders = transforms.expansion_orders(f, max(halves))
@@ -274,7 +280,8 @@ class SpectrumAccumulator:
             t, *state, offsets, scales, *self._kernel, *self._window_s,
             2.0 * np.pi * f, 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
             centre, half_width, weights_re, weights_im, coherent, fluence_weights,
-            self._spectrum, self.fluence)
+            self._spectrum, self.fluence,
+            *(energy if energy is not None else (np.zeros(len(batch)), np.zeros(1))))
         self.transforms["expansion"] += len(batch) * self.group.n_points
 
     def _terms(self, t, state, scale, p):

@@ -1,6 +1,6 @@
 """∫|E|² dt over each point's observer-time window, from the source samples, in one
 compiled call over a group's points (one thread per point): as `fluence.window_energy`,
-∫|E|² κ dt′ by the corrected trapezoid rule in source time, a window edge between two
+∫|E|² κ dt′ by the corrected trapezoid rule in source time (`quadrature`), a window edge between two
 samples becoming a sample of its own (source time and integrand linear in observer time).
 """
 
@@ -11,12 +11,29 @@ import numpy as np
 
 from ._jit import jit
 from .pointwise import fields_kappa
-from .quadrature import corrected_trapezoid
+
+
+@jit(inline=True)
+def _node(i, count, head, tail, first, t_src, t_obs, e, kappa, start, stop):
+    """(source time, |E|² κ) of node i of the window's count nodes: the samples from
+    `first` on, after a node at the window's start when `head` and before one at its stop
+    when `tail` (both interpolated linearly in observer time)."""
+    edge = head == 1 and i == 0
+    if edge or (tail == 1 and i == count - 1):
+        j = first - 1 if edge else first + count - head - tail - 1
+        fraction = ((start if edge else stop) - t_obs[j]) / (t_obs[j + 1] - t_obs[j])
+        low = (e[j, 0] ** 2 + e[j, 1] ** 2 + e[j, 2] ** 2) * kappa[j]
+        high = (e[j + 1, 0] ** 2 + e[j + 1, 1] ** 2 + e[j + 1, 2] ** 2) * kappa[j + 1]
+        return (t_src[j] + fraction * (t_src[j + 1] - t_src[j]),
+                low + fraction * (high - low))
+    j = first + i - head
+    return t_src[j], (e[j, 0] ** 2 + e[j, 1] ** 2 + e[j, 2] ** 2) * kappa[j]
 
 
 @jit
 def window_energy(t_src, t_obs, e, kappa, start, stop):
-    """∫|E|² dt over observer times [start, stop] (see the module docstring)."""
+    """∫|E|² dt over observer times [start, stop] (see the module docstring): the
+    corrected trapezoid rule of `quadrature`, node by node, without arrays."""
     n = t_src.shape[0]
     first = np.searchsorted(t_obs, start, side="left")
     last = np.searchsorted(t_obs, stop, side="right")
@@ -27,28 +44,30 @@ def window_energy(t_src, t_obs, e, kappa, start, stop):
     count = last - first + head + tail
     if count < 2:
         return 0.0
-    times = np.empty(count)
-    density = np.empty((count, 3))
-    for j in range(first, last):
-        times[head + j - first] = t_src[j]
-        for c in range(3):
-            density[head + j - first, c] = e[j, c] * e[j, c] * kappa[j]
-    for is_tail in range(2):
-        if (head if is_tail == 0 else tail) == 0:
-            continue
-        j = first - 1 if is_tail == 0 else last - 1
-        edge = start if is_tail == 0 else stop
-        row = 0 if is_tail == 0 else count - 1
-        fraction = (edge - t_obs[j]) / (t_obs[j + 1] - t_obs[j])
-        times[row] = t_src[j] + fraction * (t_src[j + 1] - t_src[j])
-        for c in range(3):
-            low = e[j, c] * e[j, c] * kappa[j]
-            high = e[j + 1, c] * e[j + 1, c] * kappa[j + 1]
-            density[row, c] = low + fraction * (high - low)
-    weights = np.empty((3, count))
-    corrections = np.empty((3, count))
-    corrected_trapezoid(times, density, times[0], times[count - 1], weights, corrections)
-    return weights.sum()
+    total = 0.0
+    t_prev, f_prev = 0.0, 0.0
+    t_here, f_here = _node(0, count, head, tail, first, t_src, t_obs, e, kappa, start, stop)
+    for i in range(count):
+        t_next, f_next = t_here, f_here
+        if i < count - 1:
+            t_next, f_next = _node(i + 1, count, head, tail, first, t_src, t_obs, e, kappa,
+                                   start, stop)
+        h_left = t_here - t_prev if i > 0 else 0.0
+        h_right = t_next - t_here if i < count - 1 else 0.0
+        slope = 0.0
+        if h_left > 0.0 and h_right > 0.0:
+            left = (f_here - f_prev) / h_left
+            right = (f_next - f_here) / h_right
+            slope = (h_right * left + h_left * right) / (h_left + h_right)
+        elif h_left > 0.0:
+            slope = (f_here - f_prev) / h_left
+        elif h_right > 0.0:
+            slope = (f_next - f_here) / h_right
+        total += (0.5 * (h_left + h_right) * f_here
+                  + (h_right * h_right - h_left * h_left) / 12.0 * slope)
+        t_prev, f_prev = t_here, f_here
+        t_here, f_here = t_next, f_next
+    return total
 
 
 @jit(parallel=True)

@@ -3,6 +3,8 @@ per point (one thread each, particles in order, so results do not depend on the 
 of threads) the pointwise fields, the samples inside the point's window, the weights of
 the corrected trapezoid rule and the Fourier sums by the Jacobi–Anger expansion
 (kernels/expansion.py); added coherently (Ẽ) or incoherently (weighted spectral fluence).
+The same fields give each particle's ∫|E|² dt over the window (`energy.window_energy`) when
+it is asked for, so the exact fluence costs no second pass.
 """
 
 from __future__ import annotations
@@ -13,6 +15,7 @@ import numba
 import numpy as np
 
 from ._jit import jit
+from .energy import window_energy
 from .expansion import VECTORS, expansion_sums
 from .pointwise import fields_kappa
 from .quadrature import corrected_trapezoid
@@ -49,14 +52,17 @@ def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
 @jit(parallel=True)
 def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, distance_m,
                   origin_m, start, stop, omega, top_omega, hann, centre, half_width,
-                  weights_re, weights_im, coherent, fluence_weights, spectrum, fluence):
+                  weights_re, weights_im, coherent, fluence_weights, spectrum, fluence,
+                  energy_factors, energy):
     """Add the particles' spectra at every point p of targets (P, 3) (far: directions at
     distance_m (P,) from origin_m (3,)) over observer times [start[p], stop[p]]:
     Ẽ × scales[i] to spectrum (P, K, 3) complex when `coherent`, else
     fluence_weights[i] × Σ|Ẽ|² to fluence (P, K). Particle i holds samples
     offsets[i]:offsets[i + 1] of (t, pos, beta, inv_g2, beta_dot); omega (K,) rad/s in
     the band of the weights (`expansion.chebyshev_weights` of centre, half_width, with
-    enough orders for the longest window); top_omega: 2π × the top frequency."""
+    enough orders for the longest window); top_omega: 2π × the top frequency. Where
+    energy_factors[i] ≠ 0, adds energy_factors[i] × ∫|E|² dt (per (q/4πε0)²) over the
+    window to energy (P,)."""
     n_k = omega.shape[0]
     ratio = np.zeros(n_k)  # ω/ω_top: the second sum's weight (f = 0 alone: 0)
     if top_omega > 0.0:
@@ -79,6 +85,9 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
             hi = lo + n
             fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
                          targets[p], distance_m[p], origin_m, t_obs[:n], e[:n], kappa[:n])
+            if energy_factors[i] != 0.0:
+                energy[p] += energy_factors[i] * window_energy(
+                    t[lo:hi], t_obs[:n], e[:n], kappa[:n], start[p], stop[p])
             first, count = _window_terms(t_obs[:n], e[:n], start[p], stop[p], scales[i],
                                          top_omega, hann, values)
             if count == 0:
