@@ -85,12 +85,13 @@ def _n_log(count: float) -> float:
     return count * math.log2(count)
 
 
-# fitted by tests/benchmarks/bench_spectra.py --fit on a shared 2-core machine (timings
-# under load vary by about 2×, so the model decides well only away from the crossover,
-# where it matters)
-COST = CostModel(direct_per_term_s=5.35e-08, nufft_fixed_s=3e-05,
-                 nufft_per_sample_log_s=1.62e-08, nufft_per_frequency_s=5.62e-07,
-                 nufft_per_grid_log_s=1.01e-08)
+# fitted by tests/benchmarks/bench_spectra.py --fit (and --expansion) on a quiet 2-core
+# machine; timings under load vary by about 2×, so the model decides well only away from
+# the crossover, where it matters
+COST = CostModel(direct_per_term_s=1.5e-08, nufft_fixed_s=2.81e-04,
+                 nufft_per_sample_log_s=6.61e-09, nufft_per_frequency_s=5.71e-07,
+                 nufft_per_grid_log_s=5.7e-09, expansion_per_sample_order_s=4.35e-09,
+                 expansion_per_frequency_order_s=1.58e-09)
 
 
 def predicted_s(n_samples: int, frequencies_hz: np.ndarray, span_s: float, route: str,
