@@ -25,8 +25,11 @@ one transform per particle and point.
 from __future__ import annotations
 
 import collections
+import concurrent.futures
 import dataclasses
+import threading
 
+import numba
 import numpy as np
 
 from . import transforms
@@ -36,6 +39,7 @@ from .tables import SPECTRUM_COLUMNS, spectra_table
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
 SPECTRUM_BUFFER_SAMPLES = 1_000_000  # source samples (~100 bytes each) held before a transform
+_COUNTING = threading.Lock()
 EXPANSION_TABLE_MAX = 2**22  # orders × samples of one particle (8 bytes each, per thread)
 
 
@@ -188,9 +192,11 @@ class SpectrumAccumulator:
                     energy = (np.array([exact.claim(charge_c, weight)]), exact.energy)
                 self._expansion(batch, halves, [weight], energy)
                 return exact is not None
-        for p in range(self.group.n_points):
+        def point(p):
             single = self._transform(*self._terms(t, state, COULOMB * charge_c, p), None)
             self.fluence[p] += weight * fluence(single)
+
+        self._each_point(point)
         return False
 
     def flush(self) -> None:
@@ -204,11 +210,11 @@ class SpectrumAccumulator:
         if pending and self._expansion_cheaper(pending, halves, True):
             self._expansion(pending, halves, None)
             return
-        for p in range(self.group.n_points):
+        def point(p):
             terms = [self._terms(t, state, scale, p) for t, state, scale in pending]
             terms = [(t, values) for t, values in terms if t.size]
             if not terms:
-                continue
+                return
             spans = [float(t[-1] - t[0]) for t, _ in terms]
             together_span = (max(float(t[-1]) for t, _ in terms)
                              - min(float(t[0]) for t, _ in terms))
@@ -220,6 +226,21 @@ class SpectrumAccumulator:
             else:
                 for (t, values), route in zip(terms, routes, strict=True):
                     self._spectrum[p] += self._transform(t, values, route)
+
+        self._each_point(point)
+
+    def _each_point(self, work) -> None:
+        """work(p) for every point p, in as many threads as numba has (each point writes
+        its own rows; the transforms and kernels release the GIL and plans are per thread,
+        so results do not depend on the number of threads)."""
+        threads = min(numba.get_num_threads(), self.group.n_points)
+        if threads <= 1:
+            for p in range(self.group.n_points):
+                work(p)
+            return
+        with concurrent.futures.ThreadPoolExecutor(threads) as pool:
+            for _ in pool.map(work, range(self.group.n_points)):
+                pass
 
     def _half_spans(self, batch) -> list:
         """Per particle of batch [(t, state, …)], half its longest observer-time span over
@@ -296,7 +317,8 @@ class SpectrumAccumulator:
             return np.zeros((f.size, 3), dtype=complex)
         if route is None:
             route = transforms.choose(t.size, f, float(t.max() - t.min()))
-        self.transforms[route] += 1
+        with _COUNTING:  # points run in threads
+            self.transforms[route] += 1
         return spectrum_of_sums(transforms.fourier_sums(t, values, f, route), f)
 
     def columns(self) -> dict:

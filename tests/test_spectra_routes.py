@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import pickle
 
+import numba
 import numpy as np
 import pytest
 from analytic_fields import chirped_pulse
@@ -173,3 +174,30 @@ def test_a_pickled_accumulator_carries_its_buffered_particles(monkeypatch):
     assert not accumulator._pending and not copy._pending
     assert np.array_equal(copy.spectrum, accumulator.spectrum)
     assert np.abs(copy.spectrum).max() > 0
+
+
+@pytest.mark.parametrize("coherent", [True, False], ids=["coherent", "incoherent"])
+def test_spectra_do_not_depend_on_the_number_of_threads(coherent):
+    """Points are transformed in as many threads as numba has: one thread and two give the
+    same spectra and transform counts, bit for bit (each point's sums are made alone)."""
+    tracks = [_helix_track(i, 0.7 * i) for i in range(3)]
+    group = ObserverGroup(name="near", kind="points", origin_m=np.zeros(3),
+                          points_m=np.array([[0.0, 0.0, 0.5], [0.05, 0.0, 0.4],
+                                             [0.0, 0.08, 0.6]]))
+    spectrum = SpectrumSettings(np.geomspace(1e10, 1e12, 30), coherent=coherent)
+    previous = numba.get_num_threads()
+    results = []
+    try:
+        for threads in (1, 2):
+            numba.set_num_threads(threads)
+            (result,) = compute_fields(tracks, [group], FieldSettings(step_s=1e-13),
+                                       spectrum=spectrum)
+            results.append(result.spectra)
+    finally:
+        numba.set_num_threads(previous)
+    one, two = results
+    values = (one.spectrum, two.spectrum) if coherent else (one.fluence, two.fluence)
+    assert np.abs(values[0]).max() > 0.0
+    assert np.array_equal(*values)
+    assert one.transforms == two.transforms
+    assert one.transforms["expansion"] == 0  # the per-point path, in threads

@@ -2,14 +2,15 @@
 
 error_model="numpy" lets a division by zero give inf/nan instead of raising, which lets
 LLVM vectorise the arithmetic; fastmath stays off so results are IEEE-exact and the same
-whatever the number of threads.
+whatever the number of threads. nogil: kernels called from several Python threads (the
+spectra of several points at once) run side by side.
 """
 
 from __future__ import annotations
 
 import numba
 
-JIT_OPTIONS = {"error_model": "numpy", "fastmath": False, "cache": True}
+JIT_OPTIONS = {"error_model": "numpy", "fastmath": False, "cache": True, "nogil": True}
 
 
 def jit(function=None, *, parallel: bool = False, inline: bool = False):
