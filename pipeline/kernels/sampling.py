@@ -74,9 +74,10 @@ def _step_limit(j, pos, beta, inv_g2, beta_dot, t_before, t_after, observers, se
         per_bin_limit = bin_s / (per_bin * k)
         if t_after[j] >= seen_lo[p] and t_before[j] <= seen_hi[p]:
             scale = min(scale, r / C)
-            limit = min(limit, tolerance * scale,
-                        max(per_bin_limit,
-                            math.sqrt(math.sqrt(BIN_ACCURACY * bin_s / k)) * scale ** 0.75))
+            limit = min(limit, tolerance * scale)
+            if per_bin_limit < limit:  # else the relaxed limit (≥ per_bin_limit) cannot bind
+                relaxed = math.sqrt(math.sqrt(BIN_ACCURACY * bin_s * scale * scale * scale / k))
+                limit = min(limit, max(per_bin_limit, relaxed))
         else:
             limit = min(limit, tolerance * scale, per_bin_limit)
     return limit
