@@ -210,19 +210,32 @@ class SpectrumAccumulator:
         if pending and self._expansion_cheaper(pending, halves, True):
             self._expansion(pending, halves, None)
             return
+        t_all = np.concatenate([item[0] for item in pending])
+        state = [np.ascontiguousarray(np.concatenate([item[1][i] for item in pending]),
+                                      dtype=float) for i in range(4)]
+        offsets = np.cumsum([0] + [item[0].size for item in pending]).astype(np.int64)
+        scales = np.array([item[2] for item in pending], dtype=float)
+        far, targets, distance_m, origin_m = self._kernel
+        start, stop = self._window_s
+
         def point(p):
-            terms = [self._terms(t, state, scale, p) for t, state, scale in pending]
-            terms = [(t, values) for t, values in terms if t.size]
+            # every particle's quadrature terms at p in one compiled call, packed in order
+            t_out, values = np.empty(t_all.size), np.empty((transforms.N_VECTORS, t_all.size))
+            firsts, counts = (np.empty(len(pending), dtype=np.int64) for _ in range(2))
+            rows = point_spectra.point_terms(
+                t_all, *state, offsets, scales, far, targets[p], distance_m[p], origin_m,
+                start[p], stop[p], 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
+                t_out, values, firsts, counts)
+            terms = [(t_out[a:a + n], values[:, a:a + n].T)
+                     for a, n in zip(firsts.tolist(), counts.tolist(), strict=True) if n]
             if not terms:
                 return
             spans = [float(t[-1] - t[0]) for t, _ in terms]
             together_span = (max(float(t[-1]) for t, _ in terms)
                              - min(float(t[0]) for t, _ in terms))
             how, routes = coherent_plan([t.size for t, _ in terms], spans, together_span, f)
-            if how == "together":
-                self._spectrum[p] += self._transform(np.concatenate([t for t, _ in terms]),
-                                                     np.concatenate([v for _, v in terms]),
-                                                     routes)
+            if how == "together":  # the packed rows are the concatenation
+                self._spectrum[p] += self._transform(t_out[:rows], values[:, :rows].T, routes)
             else:
                 for (t, values), route in zip(terms, routes, strict=True):
                     self._spectrum[p] += self._transform(t, values, route)

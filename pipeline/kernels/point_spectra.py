@@ -49,6 +49,39 @@ def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
     return first, count
 
 
+@jit
+def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, distance,
+                origin, start, stop, top_omega, hann, t_out, values_out, firsts, counts):
+    """The two Fourier sums' samples of every particle at one point (as
+    `spectra.quadrature_terms` of its fields × scales[i] over [start, stop]), packed one
+    particle after another: particle i's count[i] terms at rows firsts[i] … of t_out (N,)
+    and values_out (VECTORS, N). Returns the rows filled."""
+    most = 0
+    for i in range(offsets.shape[0] - 1):
+        most = max(most, offsets[i + 1] - offsets[i])
+    t_obs = np.empty(most)
+    e = np.empty((most, 3))
+    kappa = np.empty(most)
+    values = np.empty((VECTORS, most))
+    row = 0
+    for i in range(offsets.shape[0] - 1):
+        lo = offsets[i]
+        n = offsets[i + 1] - lo
+        hi = lo + n
+        fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
+                     target, distance, origin, t_obs[:n], e[:n], kappa[:n])
+        first, count = _window_terms(t_obs[:n], e[:n], start, stop, scales[i], top_omega,
+                                     hann, values)
+        firsts[i] = row
+        counts[i] = count
+        for j in range(count):
+            t_out[row + j] = t_obs[first + j]
+            for c in range(VECTORS):
+                values_out[c, row + j] = values[c, j]
+        row += count
+    return row
+
+
 @jit(parallel=True)
 def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, distance_m,
                   origin_m, start, stop, omega, top_omega, hann, centre, half_width,
