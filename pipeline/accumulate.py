@@ -12,6 +12,7 @@ from .constants import COULOMB, C
 from .fluence import FluenceAccumulator
 from .kernels import deposit
 from .motion import Motion
+from .retarded import span_arguments
 from .sources import accelerated_part, radiation_stops, source_samples, source_span
 from .spectra import SpectrumAccumulator
 
@@ -67,6 +68,8 @@ class FieldAccumulator:
         self.edge0 = start_s - 0.5 * settings.step_s
         self.integrals = np.zeros((group.n_points, int(n_bins.max()), 6))
         self.geometry = group.geometry(settings.far_field)
+        self._edges = (self.edge0, self.edge0 + n_bins * settings.step_s)  # observer times
+        self._span_arguments = span_arguments(self.geometry, *self._edges, settings.extend)
         self._pending = []
         self._pending_samples = 0
         self.source_samples = 0
@@ -78,10 +81,8 @@ class FieldAccumulator:
                                           spectrum is None or spectrum.coherent)
 
     def add(self, motion: Motion) -> None:
-        edge_lo = self.edge0
-        edge_hi = self.edge0 + self.n_bins * self.settings.step_s
-        span, seen = source_span(motion, self.geometry, edge_lo, edge_hi,
-                                 self.settings.extend)
+        span, seen = source_span(motion, self.geometry, *self._edges, self.settings.extend,
+                                 self._span_arguments)
         far = self.geometry.far
         if far:
             span, seen = accelerated_part(span, seen, motion)

@@ -38,21 +38,30 @@ def retarded_time(motion, observer_m, t_obs_s, *, far_direction=None, far_distan
     return out
 
 
-def span_times(motion, geometry, edge_lo, edge_hi, extend: str):
+def span_arguments(geometry, edge_lo, edge_hi, extend: str) -> tuple:
+    """The arguments of `span_times` that do not depend on the particle, as the kernel takes
+    them (made once per group and window: per particle they cost more than the solve)."""
+    count = geometry.targets.shape[0]
+    distances = geometry.distance_m if geometry.far else _NO_DISTANCES
+    return (np.ascontiguousarray(geometry.targets, dtype=float),
+            np.ascontiguousarray(distances, dtype=float),
+            np.ascontiguousarray(geometry.origin_m, dtype=float), bool(geometry.far),
+            np.ascontiguousarray(np.broadcast_to(np.asarray(edge_lo, dtype=float), count)),
+            np.ascontiguousarray(np.broadcast_to(np.asarray(edge_hi, dtype=float), count)),
+            extend == "none")
+
+
+def span_times(motion, geometry, edge_lo, edge_hi, extend: str, arguments=None):
     """Per point of the group, the source times (lo (P,), hi (P,)) whose light reaches it at
     observer times edge_lo, edge_hi ((P,) or scalars): the closed form on the ballistic
     extensions, the solver where that root lies within the sampled track; with
     extend = "none" clipped to the track's span. geometry: the group's
-    `observers.Geometry` (its targets are the points, or the far-field directions)."""
+    `observers.Geometry` (its targets are the points, or the far-field directions);
+    arguments: `span_arguments` of the same, if made already."""
+    if arguments is None:
+        arguments = span_arguments(geometry, edge_lo, edge_hi, extend)
     count = geometry.targets.shape[0]
-    distances = geometry.distance_m if geometry.far else _NO_DISTANCES
     lo = np.empty(count)
     hi = np.empty(count)
-    kernels.source_span(
-        *motion.record, np.ascontiguousarray(geometry.targets, dtype=float),
-        np.ascontiguousarray(distances, dtype=float),
-        np.ascontiguousarray(geometry.origin_m, dtype=float), bool(geometry.far),
-        np.ascontiguousarray(np.broadcast_to(np.asarray(edge_lo, dtype=float), count)),
-        np.ascontiguousarray(np.broadcast_to(np.asarray(edge_hi, dtype=float), count)),
-        extend == "none", lo, hi)
+    kernels.source_span(*motion.record, *arguments, lo, hi)
     return lo, hi

@@ -24,14 +24,14 @@ UNIFORM_SPLIT_MAX = 64  # pieces an interval is split into evenly in one refinem
 MAX_SAMPLES_PER_PARTICLE = 50_000_000
 
 
-def source_span(motion: Motion, geometry, edge_lo, edge_hi, extend: str):
+def source_span(motion: Motion, geometry, edge_lo, edge_hi, extend: str, arguments=None):
     """(span, seen): the source-time interval (t_lo, t_hi) whose light covers observer
     times [edge_lo, edge_hi] at every point (conservative: it may be wider), and per point
     the source times (seen_lo (P,), seen_hi (P,)) whose light reaches it in its window
     (compiled: a closed form on the ballistic extensions, the retarded-time solve where
-    that root lies within the sampled track; see `retarded.span_times`). geometry: the
-    group's observers.Geometry."""
-    lo, hi = span_times(motion, geometry, edge_lo, edge_hi, extend)
+    that root lies within the sampled track; see `retarded.span_times`, and for
+    `arguments` `retarded.span_arguments`). geometry: the group's observers.Geometry."""
+    lo, hi = span_times(motion, geometry, edge_lo, edge_hi, extend, arguments)
     return (float(lo.min()), float(hi.max())), (lo, hi)
 
 
