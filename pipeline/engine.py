@@ -2,9 +2,9 @@
 
 For each observer group: (1) the time window (`windows`: SPEC's default or the run's),
 (2) per particle the source-time samples (`sources`), chosen from the step and the local κ
-so that every observer bin gets several samples and no dip of κ is stepped over, (3) the
-compiled kernels add each particle's exact bin integrals of E and B, weighted by charge ×
-weight (`accumulate`). This module holds the settings and the driver; the arithmetic is in
+so that the bins' primitives are interpolated accurately and no dip of κ is stepped over
+(`kernels.sampling`), (3) the compiled kernels add each particle's exact bin integrals of E
+and B, weighted by charge × weight (`accumulate`). This module holds the settings and the driver; the arithmetic is in
 `lagfield.kernels`.
 """
 

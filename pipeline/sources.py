@@ -15,7 +15,7 @@ from .kernels import refine
 from .motion import Motion
 from .retarded import span_times
 
-SAMPLES_PER_BIN = 4.0  # at least this many source samples per observer bin
+SAMPLES_PER_BIN = 4.0  # source samples per observer bin, where the field varies fast
 ANGLE_TOLERANCE = 0.02  # fraction of R/c or of √(2κ)/|β̇| one source step may span
 SUBDIVISIONS_PER_INTERVAL = 4  # initial source samples between two track samples
 REACH_DISTANCE_M = 1e-9  # a track this close to a point reaches it
