@@ -4,8 +4,8 @@ For each observer group: (1) the time window (`windows`: SPEC's default or the r
 (2) per particle the source-time samples (`sources`), chosen from the step and the local κ
 so that the bins' primitives are interpolated accurately and no dip of κ is stepped over
 (`kernels.sampling`), (3) the compiled kernels add each particle's exact bin integrals of E
-and B, weighted by charge × weight (`accumulate`). This module holds the settings and the driver; the arithmetic is in
-`lagfield.kernels`.
+and B, weighted by charge × weight (`accumulate`). This module holds the settings and the
+driver; the arithmetic is in `lagfield.kernels`.
 """
 
 from __future__ import annotations
