@@ -70,9 +70,7 @@ class FieldSettings:
     def resolution_s(self) -> float:
         """Observer-time scale the source sampling must resolve: the step, or a fraction
         of the period of the top frequency when spectra are asked."""
-        if not self.max_frequency_hz:
-            return self.step_s
-        return min(self.step_s, SAMPLES_PER_BIN / (SAMPLES_PER_PERIOD * self.max_frequency_hz))
+        return min(self.step_s, self.sampling_resolution_s())
 
     def sampling_resolution_s(self) -> float:
         """Observer-time scale in which the source samples must put SAMPLES_PER_BIN samples:

@@ -34,7 +34,7 @@ import numpy as np
 
 from . import transforms
 from .constants import COULOMB, EPS0_C
-from .kernels import expansion, point_spectra, pointwise, quadrature
+from .kernels import expansion, point_spectra, quadrature
 from .tables import SPECTRUM_COLUMNS, spectra_table
 
 SAMPLES_PER_PERIOD = 16.0  # source samples (in observer time) per period of the top frequency
@@ -113,16 +113,6 @@ def fluence(spectrum: np.ndarray) -> np.ndarray:
     return 2.0 * EPS0_C * np.sum(np.abs(spectrum) ** 2, axis=-1)
 
 
-def observed_fields(t, state, kernel, point: int):
-    """(t_obs (N,), E per q/(4πε0) (N, 3), κ (N,)) of the source samples (t, state = (pos,
-    beta, inv_g2, beta_dot)) at one point of a geometry given as `kernel_geometry` gives it."""
-    far, targets, distance_m, origin_m = kernel
-    t_obs, e, kappa = np.empty(t.size), np.empty((t.size, 3)), np.empty(t.size)
-    pointwise.fields_kappa(t, *state[:4], far, targets[point], distance_m[point], origin_m,
-                           t_obs, e, kappa)
-    return t_obs, e, kappa
-
-
 def kernel_geometry(geometry, n_points: int) -> tuple:
     """(far, targets (P, 3), distance_m (P,), origin_m (3,)) of an observers.Geometry as the
     compiled per-point kernels take them (contiguous; distances 1 in the near field)."""
@@ -192,9 +182,12 @@ class SpectrumAccumulator:
                     energy = (np.array([exact.claim(charge_c, weight)]), exact.energy)
                 self._expansion(batch, halves, [weight], energy)
                 return exact is not None
+        packed = self._packed([(t, state, COULOMB * charge_c)])
+
         def point(p):
-            single = self._transform(*self._terms(t, state, COULOMB * charge_c, p), None)
-            self.fluence[p] += weight * fluence(single)
+            terms, _ = self._point_terms(packed, p)
+            for t_p, values in terms:
+                self.fluence[p] += weight * fluence(self._transform(t_p, values, None))
 
         self._each_point(point)
         return False
@@ -210,37 +203,51 @@ class SpectrumAccumulator:
         if pending and self._expansion_cheaper(pending, halves, True):
             self._expansion(pending, halves, None)
             return
-        t_all = np.concatenate([item[0] for item in pending])
-        state = [np.ascontiguousarray(np.concatenate([item[1][i] for item in pending]),
-                                      dtype=float) for i in range(4)]
-        offsets = np.cumsum([0] + [item[0].size for item in pending]).astype(np.int64)
-        scales = np.array([item[2] for item in pending], dtype=float)
-        far, targets, distance_m, origin_m = self._kernel
-        start, stop = self._window_s
+        packed = self._packed(pending)
 
         def point(p):
-            # every particle's quadrature terms at p in one compiled call, packed in order
-            t_out, values = np.empty(t_all.size), np.empty((transforms.N_VECTORS, t_all.size))
-            firsts, counts = (np.empty(len(pending), dtype=np.int64) for _ in range(2))
-            rows = point_spectra.point_terms(
-                t_all, *state, offsets, scales, far, targets[p], distance_m[p], origin_m,
-                start[p], stop[p], 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
-                t_out, values, firsts, counts)
-            terms = [(t_out[a:a + n], values[:, a:a + n].T)
-                     for a, n in zip(firsts.tolist(), counts.tolist(), strict=True) if n]
+            terms, together = self._point_terms(packed, p)
             if not terms:
                 return
             spans = [float(t[-1] - t[0]) for t, _ in terms]
             together_span = (max(float(t[-1]) for t, _ in terms)
                              - min(float(t[0]) for t, _ in terms))
             how, routes = coherent_plan([t.size for t, _ in terms], spans, together_span, f)
-            if how == "together":  # the packed rows are the concatenation
-                self._spectrum[p] += self._transform(t_out[:rows], values[:, :rows].T, routes)
+            if how == "together":
+                self._spectrum[p] += self._transform(*together, routes)
             else:
                 for (t, values), route in zip(terms, routes, strict=True):
                     self._spectrum[p] += self._transform(t, values, route)
 
         self._each_point(point)
+
+    @staticmethod
+    def _packed(batch) -> tuple:
+        """(t, [pos, beta, inv_g2, beta_dot], offsets, scales) of particles
+        [(t, state, field scale)], one after another, as the compiled kernels take them."""
+        t = np.concatenate([item[0] for item in batch])
+        state = [np.ascontiguousarray(np.concatenate([item[1][i] for item in batch]),
+                                      dtype=float) for i in range(4)]
+        offsets = np.cumsum([0] + [item[0].size for item in batch]).astype(np.int64)
+        scales = np.array([item[2] for item in batch], dtype=float)
+        return t, state, offsets, scales
+
+    def _point_terms(self, packed, p) -> tuple:
+        """(terms, together): the quadrature terms (t_obs (n,), values (n, 6)) at point p of
+        each packed particle with samples in p's window (`quadrature_terms` of its fields ×
+        scale; one compiled call), and all of them joined (they are packed in order)."""
+        t, state, offsets, scales = packed
+        far, targets, distance_m, origin_m = self._kernel
+        start, stop = self._window_s
+        t_out, values = np.empty(t.size), np.empty((transforms.N_VECTORS, t.size))
+        firsts, counts = (np.empty(scales.size, dtype=np.int64) for _ in range(2))
+        rows = point_spectra.point_terms(
+            t, *state, offsets, scales, far, targets[p], distance_m[p], origin_m, start[p],
+            stop[p], 2.0 * np.pi * float(self.settings.frequencies_hz.max()),
+            self.settings.taper == "hann", t_out, values, firsts, counts)
+        terms = [(t_out[a:a + n], values[:, a:a + n].T)
+                 for a, n in zip(firsts.tolist(), counts.tolist(), strict=True) if n]
+        return terms, (t_out[:rows], values[:, :rows].T)
 
     def _each_point(self, work) -> None:
         """work(p) for every point p, in as many threads as numba has (each point writes
@@ -302,11 +309,7 @@ class SpectrumAccumulator:
             self._weights = (orders, *expansion.chebyshev_weights(omega, centre,
                                                                   half_width, orders))
         _, weights_re, weights_im = self._weights
-        t = np.concatenate([b[0] for b in batch])
-        state = [np.ascontiguousarray(np.concatenate([b[1][i] for b in batch]), dtype=float)
-                 for i in range(4)]
-        offsets = np.cumsum([0] + [b[0].size for b in batch]).astype(np.int64)
-        scales = np.array([b[2] for b in batch], dtype=float)
+        t, state, offsets, scales = self._packed(batch)
         coherent = weights is None
         fluence_weights = np.zeros(len(batch)) if coherent else (
             2.0 * EPS0_C * np.asarray(weights, dtype=float))
@@ -317,12 +320,6 @@ class SpectrumAccumulator:
             self._spectrum, self.fluence,
             *(energy if energy is not None else (np.zeros(len(batch)), np.zeros(1))))
         self.transforms["expansion"] += len(batch) * self.group.n_points
-
-    def _terms(self, t, state, scale, p):
-        """(t_obs, values (n, 6)) of one particle's samples at point p, fields × scale."""
-        t_obs, e, _ = observed_fields(t, state, self._kernel, p)
-        return quadrature_terms(t_obs, e * scale, self.start_s[p], self.stop_s[p],
-                                self.settings.frequencies_hz.max(), self.settings.taper)
 
     def _transform(self, t, values, route):
         f = self.settings.frequencies_hz

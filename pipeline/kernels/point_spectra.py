@@ -50,15 +50,22 @@ def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
 
 
 @jit
+def _longest(offsets):
+    """The most samples any particle holds (particle i: offsets[i] … offsets[i + 1])."""
+    most = 0
+    for i in range(offsets.shape[0] - 1):
+        most = max(most, offsets[i + 1] - offsets[i])
+    return most
+
+
+@jit
 def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, distance,
                 origin, start, stop, top_omega, hann, t_out, values_out, firsts, counts):
     """The two Fourier sums' samples of every particle at one point (as
     `spectra.quadrature_terms` of its fields × scales[i] over [start, stop]), packed one
     particle after another: particle i's count[i] terms at rows firsts[i] … of t_out (N,)
     and values_out (VECTORS, N). Returns the rows filled."""
-    most = 0
-    for i in range(offsets.shape[0] - 1):
-        most = max(most, offsets[i + 1] - offsets[i])
+    most = _longest(offsets)
     t_obs = np.empty(most)
     e = np.empty((most, 3))
     kappa = np.empty(most)
@@ -101,9 +108,7 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
     if top_omega > 0.0:
         for k in range(n_k):
             ratio[k] = omega[k] / top_omega
-    most = 0
-    for i in range(offsets.shape[0] - 1):
-        most = max(most, offsets[i + 1] - offsets[i])
+    most = _longest(offsets)
     for p in numba.prange(targets.shape[0]):
         t_obs = np.empty(most)
         e = np.empty((most, 3))
