@@ -13,7 +13,7 @@ from .fluence import FluenceAccumulator
 from .kernels import deposit
 from .motion import Motion
 from .retarded import span_arguments
-from .sources import accelerated_part, radiation_stops, source_samples, source_span
+from .sources import sample_motions
 from .spectra import SpectrumAccumulator
 
 # Source samples buffered per deposit call: 14 floats each, held twice while a call is
@@ -41,21 +41,6 @@ class GroupFields:
         return self.start_s[point] + self.step_s * np.arange(self.n_bins[point])
 
 
-def extension_ends(motion: Motion, extend: str) -> np.ndarray:
-    """(2, deposit.END_COLUMNS): time, position, velocity and 1/γ² of the track's first and
-    last sample, where its ballistic extensions start (none with extend = "none")."""
-    ends = np.empty((2, deposit.END_COLUMNS))
-    times = np.array([motion.t_first, motion.t_last])
-    r, beta, inv_g2, _ = motion.evaluate(times)
-    ends[:, deposit.END_T] = times
-    ends[:, deposit.END_X:deposit.END_X + 3] = r
-    ends[:, deposit.END_BX:deposit.END_BX + 3] = beta
-    ends[:, deposit.END_IG2] = inv_g2
-    if extend == "none":
-        ends[:, deposit.END_T] = (-np.inf, np.inf)
-    return ends
-
-
 class FieldAccumulator:
     """Bin integrals of one group, to which chunks of particles are added."""
 
@@ -81,54 +66,65 @@ class FieldAccumulator:
                                           spectrum is None or spectrum.coherent)
 
     def add(self, motion: Motion) -> None:
-        span, seen = source_span(motion, self.geometry, *self._edges, self.settings.extend,
-                                 self._span_arguments)
-        far = self.geometry.far
-        if far:
-            span, seen = accelerated_part(span, seen, motion)
-            if span is None:
-                return  # the window sees only extensions: no radiation
-        t, state = source_samples(motion, self.group, self.geometry, span,
-                                  self.settings.sampling_resolution_s(), seen,
-                                  bin_s=self.settings.step_s)
-        if far:
-            t, state = radiation_stops(t, state, motion)
-        scale = motion.track.charge_c * motion.track.weight
-        ends = extension_ends(motion, self.settings.extend)
-        state, reference = state[:4], state[4:]  # references: observer times keep digits
-        charge_c, weight = motion.track.charge_c, motion.track.weight
-        folded = (self.spectra is not None
-                  and self.spectra.add(t, state, charge_c, weight, exact=self.fluence))
-        if not folded:
-            self.fluence.add(t, state, charge_c, weight)
-        self._pending.append((t, state, scale, ends, reference))
-        self._pending_samples += t.size
-        self.source_samples += t.size
-        if self._pending_samples >= SAMPLES_PER_KERNEL_CALL:
-            self.flush()
+        self.add_batch([motion])
+
+    def add_batch(self, motions, pool=None, threads: int = 1) -> None:
+        """Add motions (a list of Motion); pool: a thread pool of `threads` threads that
+        share their source sampling (see `sources.sample_motions`)."""
+        runs = sample_motions(motions, self.group, self._span_arguments,
+                              self.settings.sampling_resolution_s(), self.settings.step_s,
+                              pool, threads)
+        for run, t, columns, offsets, ends in runs:
+            self._per_particle(run, t, columns, offsets)
+            scale = np.array([m.track.charge_c * m.track.weight for m in run])
+            self._pending.append((t, columns, offsets, scale, ends))
+            self._pending_samples += t.size
+            self.source_samples += t.size
+            if self._pending_samples >= SAMPLES_PER_KERNEL_CALL:
+                self.flush()
+
+    def _per_particle(self, run, t, columns, offsets) -> None:
+        """Spectra and exact fluence, which take particles one at a time; skipped when
+        neither is asked (a coherent fluence of more than one track is no longer exact)."""
+        fluence = self.fluence
+        if self.spectra is None and fluence.coherent and fluence.tracks > 1:
+            fluence.tracks += len(run)
+            return
+        for i, motion in enumerate(run):
+            a, b = offsets[i], offsets[i + 1]
+            if a == b:
+                continue  # nothing seen (far field: only the extensions)
+            state = tuple(column[a:b] for column in columns[:4])
+            charge_c, weight = motion.track.charge_c, motion.track.weight
+            folded = (self.spectra is not None
+                      and self.spectra.add(t[a:b], state, charge_c, weight, exact=fluence))
+            if not folded:
+                fluence.add(t[a:b], state, charge_c, weight)
 
     def flush(self) -> None:
         if not self._pending:
             return
-        t = np.concatenate([p[0] for p in self._pending])
-        pos, beta, inv_g2, beta_dot = (np.ascontiguousarray(np.concatenate(
-            [p[1][i] for p in self._pending])) for i in range(4))
-        offsets = np.concatenate([[0], np.cumsum([p[0].size for p in self._pending])])
-        scale = np.array([p[2] for p in self._pending])
-        ends = np.stack([p[3] for p in self._pending])
-        reference = tuple(np.ascontiguousarray(np.concatenate([p[4][i] for p in self._pending]))
-                          for i in range(3))
+        pending, self._pending, self._pending_samples = self._pending, [], 0
+        if len(pending) == 1:
+            t, columns, offsets, scale, ends = pending[0]
+        else:
+            t = np.concatenate([p[0] for p in pending])
+            columns = tuple(np.concatenate([p[1][i] for p in pending]) for i in range(7))
+            bases = np.cumsum([0] + [p[0].size for p in pending[:-1]])
+            offsets = np.concatenate([[0]] + [p[2][1:] + base
+                                              for p, base in zip(pending, bases, strict=True)])
+            scale = np.concatenate([p[3] for p in pending])
+            ends = np.concatenate([p[4] for p in pending])
+        pos, beta, inv_g2, beta_dot = columns[:4]
         args = (t, pos, beta, inv_g2, beta_dot, offsets.astype(np.int64), scale)
         geometry = self.geometry
         if geometry.far:
             deposit.deposit_far(*args, geometry.targets, geometry.distance_m, geometry.origins_m(),
                                 self.edge0, self.settings.step_s, self.n_bins, self.integrals,
-                                ends, reference)
+                                ends, columns[4:])
         else:
             deposit.deposit_near(*args, geometry.targets, self.edge0, self.settings.step_s,
-                                 self.n_bins, self.integrals, ends, reference)
-        self._pending = []
-        self._pending_samples = 0
+                                 self.n_bins, self.integrals, ends, columns[4:])
 
     def result(self) -> GroupFields:
         """The group's fields; the accumulator is spent (its bin integrals become the fields,

@@ -10,8 +10,11 @@ driver; the arithmetic is in `lagfield.kernels`.
 
 from __future__ import annotations
 
+import concurrent.futures
 import dataclasses
 import math
+
+import numba
 
 from .accumulate import SAMPLES_PER_KERNEL_CALL, FieldAccumulator, GroupFields, add_results
 from .motion import checked_motions
@@ -89,8 +92,9 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, en
     the tracks, and their spectra when `spectrum` (SpectrumSettings) is given.
     `tracks` is an iterable of Track. The time grids come from `windows` (see
     `group_windows`), else from `ends` (see `track_ends`), else from the tracks themselves
-    (a second pass). progress(1) is called for each particle in each group, as it is done
-    (so len(tracks) × len(groups) calls in all)."""
+    (a second pass). progress(n) is called as n particles are done in a group (len(tracks) ×
+    len(groups) in all). The source sampling of a batch of particles is shared among numba's
+    threads (results do not depend on their number)."""
     path = getattr(tracks, "path", None)  # the track file, for errors
     if windows is None:
         if ends is None:
@@ -99,14 +103,15 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, en
         windows = group_windows(groups, ends, settings)
     accumulators = [FieldAccumulator(group, start, n_bins, settings, spectrum)
                     for group, (start, n_bins) in zip(groups, windows, strict=True)]
-    for batch in _batches(tracks):
-        motions = checked_motions(batch, settings.resolution_s(), path=path,
-                                  degree=settings.degree, extend=settings.extend,
-                                  smoothing_m=settings.smoothing_m,
-                                  u_offset_s=settings.u_offset_s)
-        for motion in motions:
+    threads = numba.get_num_threads()
+    with concurrent.futures.ThreadPoolExecutor(threads) as pool:
+        for batch in _batches(tracks):
+            motions = checked_motions(batch, settings.resolution_s(), path=path,
+                                      degree=settings.degree, extend=settings.extend,
+                                      smoothing_m=settings.smoothing_m,
+                                      u_offset_s=settings.u_offset_s)
             for accumulator in accumulators:
-                accumulator.add(motion)
+                accumulator.add_batch(motions, pool, threads)
                 if progress is not None:
-                    progress(1)
+                    progress(len(motions))
     return [accumulator.result() for accumulator in accumulators]

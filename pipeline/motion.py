@@ -139,6 +139,7 @@ class Motion:
     def _adopt(self, group: _Group, g: int) -> None:
         """Take motion g of `group` (views of its arrays)."""
         self._record = (group.record[0], group.record[1][g])
+        self.group_record, self.row = group.record, g  # (header, values (G, L)), g
         self._breaks = kernels.field(self._record, "breaks")
         if group.raw_slip_s is not None:
             self.raw_slip_s = group.raw_slip_s[g]

@@ -10,8 +10,8 @@ from __future__ import annotations
 import numpy as np
 
 from .errors import LagfieldError, ObserverError
+from .kernels import batch, refine
 from .kernels import motion as motion_kernels
-from .kernels import refine
 from .motion import Motion
 from .retarded import span_times
 
@@ -22,6 +22,7 @@ REACH_DISTANCE_M = 1e-9  # a track this close to a point reaches it
 MAX_REFINEMENTS = 200
 UNIFORM_SPLIT_MAX = 64  # pieces an interval is split into evenly in one refinement
 MAX_SAMPLES_PER_PARTICLE = 50_000_000
+MOTIONS_PER_THREAD = 16  # fewer motions than this per thread: sampled in one thread
 
 
 def source_span(motion: Motion, geometry, edge_lo, edge_hi, extend: str, arguments=None):
@@ -59,49 +60,89 @@ def source_samples(motion: Motion, group, geometry, span, resolution_s: float, s
         bool(geometry.far), float(resolution_s),
         float(resolution_s if bin_s is None else bin_s), float(per_bin), float(tolerance),
         int(uniform_split_max), int(max_samples), int(max_refinements), float(reach_m))
-    if status == refine.OK:
-        return t, motion_kernels.state_columns(state)
+    if status != refine.OK:
+        raise sampling_error(status, motion, group, point, distance_m, max_samples,
+                             max_refinements)
+    return t, motion_kernels.state_columns(state)
+
+
+def sampling_error(status, motion: Motion, group, point, distance_m,
+                   max_samples=MAX_SAMPLES_PER_PARTICLE, max_refinements=MAX_REFINEMENTS):
+    """The error of a failed refinement (`kernels.refine.refine`'s status, point and
+    distance_m) of `motion` for observer `group`."""
     if status == refine.TOO_MANY_SAMPLES:
-        raise LagfieldError(
+        return LagfieldError(
             f"particle {motion.particle}, observer group '{group.name}': more than "
             f"{max_samples:.0e} source samples would be needed; shorten the time window or "
             "enlarge [time] step")
     if status == refine.NOT_SETTLED:
-        raise LagfieldError(f"particle {motion.particle}: source sampling did not settle "
-                            f"after {max_refinements} refinements")
-    raise ObserverError(
+        return LagfieldError(f"particle {motion.particle}: source sampling did not settle "
+                             f"after {max_refinements} refinements")
+    return ObserverError(
         f"observer group '{group.name}', point {point} at {group.points_m[point].tolist()} m: "
         f"particle {motion.particle} reaches it during the time window (closest approach "
         f"{distance_m:.3g} m, extension included); the field there is singular. Move the "
         "point off the track")
 
 
-def _insert_stops(t, state, where, source):
-    """Copies of the samples `source` (same time, position, velocity and references; zero
-    acceleration) inserted before the indices `where`."""
-    inserted = tuple(np.insert(a, where, np.zeros_like(a[source]) if i == 3 else a[source],
-                               axis=0) for i, a in enumerate(state))
-    return np.insert(t, where, t[source]), inserted
+def _runs(motions):
+    """Lists of consecutive motions of one group of motions (`Motion.group_record`)."""
+    run = []
+    for motion in motions:
+        if run and motion.group_record[1] is not run[0].group_record[1]:
+            yield run
+            run = []
+        run.append(motion)
+    if run:
+        yield run
 
 
-def accelerated_part(span, seen, motion: Motion):
-    """Far field: the part of `span` (and of each point's `seen` window) on the sampled
-    track, or (None, None). The radiation term vanishes where β̇ = 0, so the ballistic
-    extensions send no far field (their primitive n×(n×β)/κ is constant)."""
-    t_lo, t_hi = max(span[0], motion.t_first), min(span[1], motion.t_last)
-    if not t_lo < t_hi:
-        return None, None
-    return (t_lo, t_hi), (np.clip(seen[0], t_lo, t_hi), np.clip(seen[1], t_lo, t_hi))
+def _blocks(count: int, threads: int) -> list:
+    """(first, stop) of up to `threads` contiguous blocks of count motions, each of at
+    least MOTIONS_PER_THREAD (a thread's start costs more than a few motions' sampling)."""
+    pieces = max(1, min(threads, count // MOTIONS_PER_THREAD))
+    edges = np.linspace(0, count, pieces + 1).astype(int)
+    return list(zip(edges[:-1].tolist(), edges[1:].tolist(), strict=True))
 
 
-def radiation_stops(t, state, motion: Motion):
-    """Far field: where the samples start at the track's first sample (end at its last),
-    a copy with β̇ = 0 goes before (after) it, so that the field drops to zero there rather
-    than its end value being held to the window's edge (bins and spectra stay exact)."""
-    head = t.size > 0 and t[0] == motion.t_first
-    tail = t.size > 0 and t[-1] == motion.t_last
-    if not (head or tail):
-        return t, state
-    where = ([0] if head else []) + ([t.size] if tail else [])
-    source = ([0] if head else []) + ([t.size - 1] if tail else [])
-    return _insert_stops(t, state, where, source)
+def sample_motions(motions, group, arguments, resolution_s: float, bin_s: float, pool=None,
+                   threads: int = 1):
+    """The source samples of many motions at the points of `group` (compiled, no Python per
+    particle; `kernels.batch.sample_rows`): a list, per run of motions of one group of
+    motions, of (motions, t (N,), columns, offsets (M + 1,), ends (M, 2, END_COLUMNS)), the
+    columns as `source_samples` gives them and motion i's samples at
+    offsets[i]:offsets[i + 1]. arguments: `retarded.span_arguments` of the group's geometry
+    and window; resolution_s, bin_s as for `source_samples`; pool: a thread pool of
+    `threads` threads that share the motions of a run (None: this thread). Raises the
+    error of the first motion whose sampling fails, as `source_samples` would."""
+    out = []
+    for run in _runs(motions):
+        header, values = run[0].group_record
+        rows = np.array([motion.row for motion in run], dtype=np.int64)
+        knots = np.stack([motion.track.t_s for motion in run]).astype(float, copy=False)
+
+        def sample(block, rows=rows, knots=knots, header=header, values=values):
+            first, stop = block
+            return batch.sample_rows(
+                header, values, rows[first:stop], knots[first:stop], *arguments,
+                SUBDIVISIONS_PER_INTERVAL, float(resolution_s), float(bin_s),
+                SAMPLES_PER_BIN, ANGLE_TOLERANCE, UNIFORM_SPLIT_MAX,
+                MAX_SAMPLES_PER_PARTICLE, MAX_REFINEMENTS, REACH_DISTANCE_M)
+
+        blocks = _blocks(len(run), 1 if pool is None else threads)
+        results = list(pool.map(sample, blocks)) if len(blocks) > 1 else [sample(blocks[0])]
+        for (first, _), result in zip(blocks, results, strict=True):
+            failed, status, point, distance = result[4:]
+            if failed >= 0:
+                raise sampling_error(status, run[first + failed], group, point, distance)
+        t, state, offsets, ends = results[0][:4]
+        if len(results) > 1:
+            bases = np.cumsum([0] + [r[0].size for r in results[:-1]])
+            t = np.concatenate([r[0] for r in results])
+            state = np.concatenate([r[1] for r in results])
+            offsets = np.concatenate([[0]] + [r[2][1:] + base
+                                              for r, base in zip(results, bases, strict=True)])
+            ends = np.concatenate([r[3] for r in results])
+        out.append((run, t, motion_kernels.state_columns(state), offsets, ends))
+    return out
+

@@ -32,6 +32,7 @@ from __future__ import annotations
 
 import math
 
+import numba
 import numpy as np
 
 from ..constants import C
@@ -40,6 +41,10 @@ from ._jit import jit
 # the evaluators of a row are inlined into their callers (numba IR): a call passing arrays
 # costs more than the row's arithmetic
 inline = jit(inline=True)
+
+# work (motions × items) below which the group kernels run serially: a parallel region's
+# fork and join cost more than a small group's arithmetic
+PARALLEL_MIN_WORK = 20_000
 
 # record header: kind, counts, then the offset in values of each field of FIELDS
 KIND, PIECES, TERMS, SERIES, SAMPLES = 0, 1, 2, 3, 4
@@ -387,19 +392,36 @@ def velocity_changes(header, values, t, change):
 
 
 @jit
+def _suspect(header, motion, t, margin):
+    """True where the motion may reach c at a time of t (see `speed_suspects`)."""
+    p = 0
+    for j in range(t.shape[0]):
+        p, bx, by, bz, inv_g2 = velocity_in(header, motion, p, t[j])
+        speed2 = bx * bx + by * by + bz * bz
+        if not (inv_g2 > 0.0) or not (speed2 < 1.0 - margin):
+            return True
+    return False
+
+
+@jit
+def _suspects_serial(header, values, t, margin, out):
+    for g in range(values.shape[0]):
+        out[g] = _suspect(header, values[g], t, margin)
+
+
+@jit(parallel=True)
+def _suspects_parallel(header, values, t, margin, out):
+    for g in numba.prange(values.shape[0]):
+        out[g] = _suspect(header, values[g], t, margin)
+
+
 def speed_suspects(header, values, t, margin, out):
     """out[g] = True where motion g of a group may reach c at a time of t (ascending,
     within the samples): 1/γ² ≤ 0, or |β|² ≥ 1 − margin (a wider net than the exact
-    check, which the caller then makes)."""
-    for g in range(values.shape[0]):
-        out[g] = False
-        p = 0
-        for j in range(t.shape[0]):
-            p, bx, by, bz, inv_g2 = velocity_in(header, values[g], p, t[j])
-            speed2 = bx * bx + by * by + bz * bz
-            if not (inv_g2 > 0.0) or not (speed2 < 1.0 - margin):
-                out[g] = True
-                break
+    check, which the caller then makes). In parallel over the motions of a large group."""
+    driver = (_suspects_parallel if values.shape[0] * t.shape[0] >= PARALLEL_MIN_WORK
+              else _suspects_serial)
+    driver(header, values, t, margin, out)
 
 
 @jit
@@ -418,41 +440,60 @@ def velocity_at(u_coef, g, p, sigma, beta, j):
 
 
 @jit
+def _fit_motion(u_coef, g, width_s, node_x, basis, check_x, vander, path, error, size):
+    """`chebyshev_fit` of motion g."""
+    nodes = basis.shape[0]
+    beta = np.empty((nodes, 3))
+    series = np.empty((1, nodes, 3))
+    exact = np.empty((1, 3))
+    for p in range(u_coef.shape[1]):
+        w = width_s[p]
+        for j in range(nodes):
+            velocity_at(u_coef, g, p, 0.5 * (node_x[j] + 1.0) * w, beta, j)
+        for m in range(nodes):
+            for c in range(3):
+                total = 0.0
+                for j in range(nodes):
+                    total += basis[m, j] * beta[j, c]
+                series[0, m, c] = total
+        worst = 0.0
+        largest = 0.0
+        for j in range(check_x.shape[0]):
+            velocity_at(u_coef, g, p, 0.5 * (check_x[j] + 1.0) * w, exact, 0)
+            for c in range(3):
+                fitted = 0.0
+                for m in range(nodes):
+                    fitted += vander[j, m] * series[0, m, c]
+                worst = max(worst, abs(fitted - exact[0, c]))
+                largest = max(largest, abs(exact[0, c]))
+        error[g, p] = worst
+        size[g, p] = largest
+        integrate(series, path[g], p, 0.5 * C * w)
+
+
+@jit
+def _fit_serial(u_coef, width_s, node_x, basis, check_x, vander, path, error, size):
+    for g in range(u_coef.shape[0]):
+        _fit_motion(u_coef, g, width_s, node_x, basis, check_x, vander, path, error, size)
+
+
+@jit(parallel=True)
+def _fit_parallel(u_coef, width_s, node_x, basis, check_x, vander, path, error, size):
+    for g in numba.prange(u_coef.shape[0]):
+        _fit_motion(u_coef, g, width_s, node_x, basis, check_x, vander, path, error, size)
+
+
 def chebyshev_fit(u_coef, width_s, node_x, basis, check_x, vander, path, error, size):
     """c·∫β_u dt′ from each piece's start, β_u = u/√(1 + u²), on every piece p of every
     motion g of a group, as a Chebyshev series in x = 2σ/w − 1: u_coef (G, P, k+1, 3) of
     u in σ; width_s (P,) w; basis (M, M) the series coefficients of the values at the M
     Chebyshev nodes node_x (x_j = cos(π(j + ½)/M)); into path (G, P, M+1, 3) m. With the series of
     β_u, at the points check_x (J,), where vander (J, M) gives its values: the largest
-    error |fit − β_u| (error (G, P)) and the largest |β_u| (size (G, P))."""
-    nodes = basis.shape[0]
-    beta = np.empty((nodes, 3))
-    series = np.empty((1, nodes, 3))
-    exact = np.empty((1, 3))
-    for g in range(u_coef.shape[0]):
-        for p in range(u_coef.shape[1]):
-            w = width_s[p]
-            for j in range(nodes):
-                velocity_at(u_coef, g, p, 0.5 * (node_x[j] + 1.0) * w, beta, j)
-            for m in range(nodes):
-                for c in range(3):
-                    total = 0.0
-                    for j in range(nodes):
-                        total += basis[m, j] * beta[j, c]
-                    series[0, m, c] = total
-            worst = 0.0
-            largest = 0.0
-            for j in range(check_x.shape[0]):
-                velocity_at(u_coef, g, p, 0.5 * (check_x[j] + 1.0) * w, exact, 0)
-                for c in range(3):
-                    fitted = 0.0
-                    for m in range(nodes):
-                        fitted += vander[j, m] * series[0, m, c]
-                    worst = max(worst, abs(fitted - exact[0, c]))
-                    largest = max(largest, abs(exact[0, c]))
-            error[g, p] = worst
-            size[g, p] = largest
-            integrate(series, path[g], p, 0.5 * C * w)
+    error |fit − β_u| (error (G, P)) and the largest |β_u| (size (G, P)). In parallel over
+    the motions of a large group (each motion's result is the same either way)."""
+    work = u_coef.shape[0] * u_coef.shape[1] * basis.shape[0] * basis.shape[0]
+    driver = _fit_parallel if work >= PARALLEL_MIN_WORK else _fit_serial
+    driver(u_coef, width_s, node_x, basis, check_x, vander, path, error, size)
 
 
 @jit
