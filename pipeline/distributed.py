@@ -92,6 +92,37 @@ def chunk_fields(path, read_options, particle_range, groups, settings, spectrum,
     return compute_fields(tracks, groups, settings, spectrum=spectrum, windows=windows)
 
 
+def warm_up() -> None:
+    """Run on every worker while the client reads the tracks: imports the engine and loads
+    its compiled kernels (numba's cache) with a tiny run of each kind (near and far field,
+    positions and momenta), so that the first field task does not pay for them."""
+    import numba
+
+    from .constants import C
+    from .engine import FieldSettings, compute_fields
+    from .observers import ObserverGroup
+    from .tracks import Track
+
+    numba.set_num_threads(1)
+    t = np.linspace(0.0, 1e-10, 8)
+    position = np.zeros((t.size, 3))
+    position[:, 2] = 0.5 * C * t
+    u = np.zeros((t.size, 3))
+    u[:, 2] = 0.5 / np.sqrt(0.75)
+    group = ObserverGroup("warm-up", "points", np.array([[0.1, 0.0, 0.0]]), np.zeros(3))
+    for momenta in (None, u):
+        track = Track(1, t, position, momenta, -1.6e-19, 1.0)
+        for far in (False, True):
+            compute_fields([track], [group], FieldSettings(step_s=1e-11, far_field=far))
+
+
+def start_warm_up(client) -> list:
+    """`warm_up` submitted to each worker of the client (the futures, to be released once
+    the field tasks are queued; a worker that fails it fails its field tasks alike)."""
+    return [client.submit(warm_up, workers=[address], pure=False, allow_other_workers=False)
+            for address in client.scheduler_info()["workers"]]
+
+
 def _sum(first, second):
     """A new sum of two partial results (task inputs must stay untouched for retries)."""
     from .engine import add_results

@@ -3,6 +3,7 @@ the fields (and spectra), assemble SPEC's tables and hand them to the exporters.
 
 from __future__ import annotations
 
+import contextlib
 import time
 from collections.abc import Mapping
 from pathlib import Path
@@ -117,51 +118,61 @@ def run(source, *, base_dir=None, overwrite: bool = False, write: bool = True,
         for audit in audits:
             audit.add(track)
 
-    tracks = open_tracks(config.tracks.path, visit=visit, **options)
-    tracks.warnings = [w for audit in audits for w in audit.warnings()]
-    ends, particle_ids = collected.ends(), collected.ids()
-    timings["read_s"] = time.perf_counter() - started
-    settings, spectrum = settings_from(config)
-    windows = group_windows(groups, ends, settings)
-    check_memory(groups, windows, settings, spectrum)  # before any grid is allocated
-    if target is not None:  # a full disk is found before the computation
-        target.check_space(result_bytes(windows, config.spectrum.count if config.spectrum
-                                        else 0, config.output.formats))
-    advance = _counter(progress, len(tracks) * len(groups))
-    t0 = time.perf_counter()
-    if workers is None and scheduler is None:
-        results = compute_fields(tracks, groups, settings, spectrum=spectrum,
-                                 windows=windows, progress=advance)
-    else:
-        from .distributed import compute_distributed, connect
+    with contextlib.ExitStack() as cluster:
+        client = None
+        if workers is not None or scheduler is not None:
+            from .distributed import connect, start_warm_up
 
-        read_options = {k: v for k, v in options.items() if k != "registry"}
-        per_chunk = None if advance is None else (lambda n: advance(n * len(groups)))
-        with connect(workers, scheduler) as client:
+            t0 = time.perf_counter()
+            client = cluster.enter_context(connect(workers, scheduler))
+            warming = start_warm_up(client)  # the workers load the engine meanwhile
+            timings["cluster_s"] = time.perf_counter() - t0
+        tracks = open_tracks(config.tracks.path, visit=visit, **options)
+        tracks.warnings = [w for audit in audits for w in audit.warnings()]
+        ends, particle_ids = collected.ends(), collected.ids()
+        timings["read_s"] = time.perf_counter() - started - timings.get("cluster_s", 0.0)
+        settings, spectrum = settings_from(config)
+        windows = group_windows(groups, ends, settings)
+        check_memory(groups, windows, settings, spectrum)  # before any grid is allocated
+        if target is not None:  # a full disk is found before the computation
+            target.check_space(result_bytes(windows, config.spectrum.count if config.spectrum
+                                            else 0, config.output.formats))
+        advance = _counter(progress, len(tracks) * len(groups))
+        t0 = time.perf_counter()
+        if workers is None and scheduler is None:
+            results = compute_fields(tracks, groups, settings, spectrum=spectrum,
+                                     windows=windows, progress=advance)
+        else:
+            from .distributed import compute_distributed
+
+            read_options = {k: v for k, v in options.items() if k != "registry"}
+            per_chunk = None if advance is None else (lambda n: advance(n * len(groups)))
             results = compute_distributed(client, config.tracks.path, read_options,
                                           particle_ids, groups, settings, spectrum=spectrum,
                                           windows=windows, chunk=config.compute.chunk,
                                           n_rows=tracks.n_rows,
                                           progress=per_chunk)  # n particles of a chunk
-    timings["compute_s"] = time.perf_counter() - t0
-    observers = pd.concat([group.table() for group in groups], ignore_index=True)
-    spectra = None
-    if spectrum is not None:
-        spectra = spectra_table([r.spectra for r in results])
-    signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra,
-                      fluence=fluence_table(results))
-    if config.detectors:  # checked against the signal now, before anything is written
-        t0 = time.perf_counter()
-        by_group = {result.group.name: result for result in results}
-        try:
-            signals.voltages, signals.digitized = detector_tables(config.detectors, by_group)
-        except DetectorError as exc:
-            raise DetectorError(f"{run_file or 'run'}: {exc}") from None
-        timings["detectors_s"] = time.perf_counter() - t0
-    timings["total_s"] = time.perf_counter() - started
-    signals.summary = run_summary(run_file, config, tracks=tracks, results=results,
-                                  registry=registry, exporters=exporters, timings=timings,
-                                  output=target)
-    if target is not None:
-        target.commit(signals, exporters, config.plugins)
-    return signals
+            del warming  # done before the field tasks
+            cluster.close()  # the cluster's work is done
+        timings["compute_s"] = time.perf_counter() - t0
+        observers = pd.concat([group.table() for group in groups], ignore_index=True)
+        spectra = None
+        if spectrum is not None:
+            spectra = spectra_table([r.spectra for r in results])
+        signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra,
+                          fluence=fluence_table(results))
+        if config.detectors:  # checked against the signal now, before anything is written
+            t0 = time.perf_counter()
+            by_group = {result.group.name: result for result in results}
+            try:
+                signals.voltages, signals.digitized = detector_tables(config.detectors, by_group)
+            except DetectorError as exc:
+                raise DetectorError(f"{run_file or 'run'}: {exc}") from None
+            timings["detectors_s"] = time.perf_counter() - t0
+        timings["total_s"] = time.perf_counter() - started
+        signals.summary = run_summary(run_file, config, tracks=tracks, results=results,
+                                      registry=registry, exporters=exporters, timings=timings,
+                                      output=target)
+        if target is not None:
+            target.commit(signals, exporters, config.plugins)
+        return signals
