@@ -28,6 +28,7 @@ import numpy as np
 from scipy import interpolate
 
 from .constants import C
+from .kernels import audit
 from .motion import velocity_of
 from .wording import plural
 
@@ -101,9 +102,10 @@ def _ringing_ratios(t, beta, change, k):
     spline = interpolate.make_interp_spline(t, beta, k=k, axis=-2)
     y = (np.arange(1, PROBES_PER_INTERVAL) / PROBES_PER_INTERVAL)
     probes = spline(t[:-1, None] + np.diff(t)[:, None] * y)  # (..., n−1, probes, 3)
-    low = np.minimum(beta[..., :-1, :], beta[..., 1:, :])[..., None, :]
-    high = np.maximum(beta[..., :-1, :], beta[..., 1:, :])[..., None, :]
-    overshoot = np.maximum(probes - high, low - probes).max(axis=-2)  # (..., n−1, 3)
+    overshoot = np.empty(change.shape)  # (..., n−1, 3)
+    audit.overshoots(np.ascontiguousarray(beta, dtype=float).reshape(-1, *beta.shape[-2:]),
+                     probes.reshape(-1, *probes.shape[-3:]),
+                     overshoot.reshape(-1, *overshoot.shape[-2:]))
     size = np.linalg.norm(change, axis=-1)
     before = np.concatenate([size[..., :1], size[..., :-1]], axis=-1)
     after = np.concatenate([size[..., 1:], size[..., -1:]], axis=-1)

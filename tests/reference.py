@@ -140,3 +140,11 @@ def track_from_momentum(u_of_t, t_s, r0_m, *, charge_c=-constants.e, particle=0,
     pos = np.asarray(r0_m, dtype=float) + np.concatenate([np.zeros((1, 3)),
                                                           np.cumsum(steps, axis=0)])
     return Track(particle, t_s, pos, u_of_t(t_s), charge_c, 1.0)
+
+
+def overshoots(beta, probes):
+    """Twin of kernels/audit.overshoots: beta (G, n, 3), probes (G, n−1, K, 3) → the largest
+    excursion of the probes beyond the range of their interval's two samples (G, n−1, 3)."""
+    low = np.minimum(beta[:, :-1, :], beta[:, 1:, :])[:, :, None, :]
+    high = np.maximum(beta[:, :-1, :], beta[:, 1:, :])[:, :, None, :]
+    return np.maximum(probes - high, low - probes).max(axis=2)

@@ -4,10 +4,12 @@ and must count and word the same findings as checking each track on its own."""
 from __future__ import annotations
 
 import numpy as np
+import reference
 from scenarios import make_samples_module
 from scipy import constants
 
 from lagfield import resolution
+from lagfield.kernels import audit
 from lagfield.resolution import ResolutionAudit, check_resolution
 from lagfield.tracks import Track
 
@@ -58,3 +60,17 @@ def test_a_clean_bunch_gives_no_warning():
     for track in tracks:
         audit.add(track)
     assert audit.warnings() == [] and audit.findings == 0
+
+
+def test_overshoot_kernel_matches_its_twin():
+    """kernels/audit.overshoots against the NumPy twin in tests/reference.py, on random
+    values and on a probes array laid out as the spline gives it (not contiguous)."""
+    rng = np.random.default_rng(4)
+    beta = rng.standard_normal((5, 9, 3))
+    probes = np.moveaxis(rng.standard_normal((8, 5, 7, 3)), 1, 0)  # (5, 8, 7, 3), strided
+    assert not probes.flags["C_CONTIGUOUS"]
+    out = np.empty((5, 8, 3))
+    audit.overshoots(beta, probes, out)
+    expected = reference.overshoots(beta, probes)
+    assert np.array_equal(out, expected)
+    assert (expected > 0).any() and (expected < 0).any()  # excursions and probes inside
