@@ -22,7 +22,7 @@ REACH_DISTANCE_M = 1e-9  # a track this close to a point reaches it
 MAX_REFINEMENTS = 200
 UNIFORM_SPLIT_MAX = 64  # pieces an interval is split into evenly in one refinement
 MAX_SAMPLES_PER_PARTICLE = 50_000_000
-MOTIONS_PER_THREAD = 16  # fewer motions than this per thread: sampled in one thread
+MOTIONS_PER_THREAD = 1  # motions per thread at least (a heavy particle is worth a thread)
 
 
 def source_span(motion: Motion, geometry, edge_lo, edge_hi, extend: str, arguments=None):
@@ -99,7 +99,7 @@ def _runs(motions):
 
 def _blocks(count: int, threads: int) -> list:
     """(first, stop) of up to `threads` contiguous blocks of count motions, each of at
-    least MOTIONS_PER_THREAD (a thread's start costs more than a few motions' sampling)."""
+    least MOTIONS_PER_THREAD."""
     pieces = max(1, min(threads, count // MOTIONS_PER_THREAD))
     edges = np.linspace(0, count, pieces + 1).astype(int)
     return list(zip(edges[:-1].tolist(), edges[1:].tolist(), strict=True))
