@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import contextlib
 import json
+import os
 import re
 import sys
 import warnings
@@ -17,6 +18,11 @@ from pathlib import Path
 from . import __version__
 from .errors import LagfieldError
 from .wording import plural
+
+# numba formats its error messages in colour even for errors it handles itself (loading a
+# compiled kernel does), and then registers a terminal reset written at exit, after
+# lagfield's own last line; set before numba is imported (it loads with the first run)
+os.environ.setdefault("NUMBA_DISABLE_ERROR_MESSAGE_HIGHLIGHTING", "1")
 
 EXIT_BUG = 1  # an unexpected exception: a bug in lagfield or in a plugin
 EXIT_USAGE = 2  # the command line itself is wrong (argparse)
