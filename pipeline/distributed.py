@@ -166,7 +166,8 @@ def _local_worker_config() -> dict:
     key = "distributed.nanny.pre-spawn-environ"
     environ = {name: value for name, value in dask.config.get(key, {}).items()
                if name != "MALLOC_TRIM_THRESHOLD_"}
-    return {key: environ}
+    # nor Dask's statistical profiler, which samples the task's stack every 10 ms (a few %)
+    return {key: environ, "distributed.worker.profile.enabled": False}
 
 
 # Ctrl-C at a terminal reaches the whole process group; only lagfield's own process should
