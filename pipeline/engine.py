@@ -33,7 +33,7 @@ from .spectra import SAMPLES_PER_PERIOD
 from .windows import TrackEnds, arrival_times, group_windows, time_window, track_ends
 
 MOTIONS_PER_BATCH = 256  # tracks whose motions are built together (motion.checked_motions)
-SAMPLES_PER_BATCH = 32_768  # at most this many track samples among them (memory)
+SAMPLES_PER_BATCH = 16_384  # at most this many track samples among them (memory)
 
 
 def _batches(tracks):

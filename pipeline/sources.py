@@ -108,11 +108,11 @@ def _blocks(count: int, threads: int) -> list:
 def sample_motions(motions, group, arguments, resolution_s: float, bin_s: float, pool=None,
                    threads: int = 1):
     """The source samples of many motions at the points of `group` (compiled, no Python per
-    particle; `kernels.batch.sample_rows`): a list, per run of motions of one group of
-    motions, of (motions, t (N,), columns, offsets (M + 1,), ends (M, 2, END_COLUMNS)), the
-    columns as `source_samples` gives them and motion i's samples at
-    offsets[i]:offsets[i + 1]. arguments: `retarded.span_arguments` of the group's geometry
-    and window; resolution_s, bin_s as for `source_samples`; pool: a thread pool of
+    particle; `kernels.batch.sample_rows`): a list, per block of consecutive motions (of one
+    group of motions, sampled in one thread), of (motions, t (N,), columns, offsets (M + 1,),
+    ends (M, 2, END_COLUMNS)), the columns as `source_samples` gives them and motion i's
+    samples at offsets[i]:offsets[i + 1]. arguments: `retarded.span_arguments` of the
+    group's geometry and window; resolution_s, bin_s as for `source_samples`; pool: a pool of
     `threads` threads that share the motions of a run (None: this thread). Raises the
     error of the first motion whose sampling fails, as `source_samples` would."""
     out = []
@@ -135,14 +135,7 @@ def sample_motions(motions, group, arguments, resolution_s: float, bin_s: float,
             failed, status, point, distance = result[4:]
             if failed >= 0:
                 raise sampling_error(status, run[first + failed], group, point, distance)
-        t, state, offsets, ends = results[0][:4]
-        if len(results) > 1:
-            bases = np.cumsum([0] + [r[0].size for r in results[:-1]])
-            t = np.concatenate([r[0] for r in results])
-            state = np.concatenate([r[1] for r in results])
-            offsets = np.concatenate([[0]] + [r[2][1:] + base
-                                              for r, base in zip(results, bases, strict=True)])
-            ends = np.concatenate([r[3] for r in results])
-        out.append((run, t, motion_kernels.state_columns(state), offsets, ends))
+        for (first, stop), result in zip(blocks, results, strict=True):
+            out.append((run[first:stop], *result[:4]))
     return out
 

@@ -18,7 +18,7 @@ import numpy as np
 
 from ._jit import jit
 from .deposit import END_BX, END_COLUMNS, END_IG2, END_T, END_X
-from .motion import BETA, INV_G2, POS, STATE_WIDTH, state_into
+from .motion import BETA, INV_G2, POS, STATE_WIDTH, state_columns, state_into
 from .refine import OK, _copy_row, _grown, _zero_acceleration, refine
 from .retarded import source_span
 
@@ -49,8 +49,9 @@ def sample_rows(header, values, rows, knots, targets, far_distance, origin, far,
     tracks sampled at knots (M, n) s, over the span whose light the points' windows see
     (targets (P, 3) … extend_none as `retarded.source_span` takes them; the refinement's
     rules as `refine.refine` takes them):
-    (t (N,), state (N, STATE_WIDTH), offsets (M + 1,), ends (M, 2, END_COLUMNS), failed,
-    status, point, distance_m). Motion i's samples are t[offsets[i]:offsets[i + 1]]. At the
+    (t (N,), columns, offsets (M + 1,), ends (M, 2, END_COLUMNS), failed, status, point,
+    distance_m), the columns those of `motion.state_columns` (pos, beta, inv_g2, beta_dot,
+    ref_t, ref_r, disp). Motion i's samples are t[offsets[i]:offsets[i + 1]]. At the
     first motion whose sampling fails, `failed` is its index (else -1) and the samples stop
     there; status, point and distance_m are `refine.refine`'s."""
     m = rows.shape[0]
@@ -85,7 +86,8 @@ def sample_rows(header, values, rows, knots, targets, far_distance, origin, far,
             far, resolution_s, bin_s, per_bin, tolerance, uniform_split_max, max_samples,
             max_depth, reach_m)
         if status != OK:
-            return t_all[:n], state_all[:n], offsets, ends, i, status, point, distance
+            return (t_all[:n], state_columns(state_all[:0]), offsets, ends, i, status, point,
+                    distance)
         count = t.shape[0]
         head = far and count > 0 and t[0] == t_first
         tail = far and count > 0 and t[count - 1] == t_last
@@ -108,4 +110,4 @@ def sample_rows(header, values, rows, knots, targets, far_distance, origin, far,
             _zero_acceleration(state_all, n)
             n += 1
         offsets[i + 1] = n
-    return t_all[:n].copy(), state_all[:n].copy(), offsets, ends, -1, OK, -1, np.inf
+    return t_all[:n].copy(), state_columns(state_all[:n]), offsets, ends, -1, OK, -1, np.inf
