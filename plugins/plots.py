@@ -462,7 +462,9 @@ def _sci(axis, which="y"):
     axis.ticklabel_format(axis=which, style="sci", scilimits=(-3, 4), useMathText=True)
 
 
-def plot_waveforms(name, observers_of_group, fields_of_group, layout, picks, step_s=None):
+def plot_waveforms(name, observers_of_group, fields_of_group, layout, picks, step_s=None,
+                   footer=None):
+    """E of the picked points against time; `footer` (the run's safety note) goes below."""
     figure = _new_figure(8.0, 9.0)
     axes = figure.subplots(4, 1, sharex=True)
     chosen = fields_of_group[fields_of_group["point"].isin(picks)]
@@ -488,9 +490,11 @@ def plot_waveforms(name, observers_of_group, fields_of_group, layout, picks, ste
     note = f" ({shown} of {total} points)" if shown < total else ""
     averaged = (f"\neach sample the average of E over a step of "
                 f"{_format_quantity(step_s, TIME_UNITS)}" if step_s else "")
-    figure.suptitle(f"{name}: electric field waveforms{note}{averaged}")
+    axes[0].set_title(f"{name}: electric field waveforms{note}{averaged}")
     handles, labels = axes[0].get_legend_handles_labels()
-    figure.legend(handles, labels, loc="outside lower center", ncols=2, fontsize="small")
+    # the legend above the plots, so that the footer has the bottom to itself
+    figure.legend(handles, labels, loc="outside upper center", ncols=2, fontsize="small")
+    _footer(figure, footer, 110)
     return figure
 
 
@@ -560,9 +564,11 @@ def plot_map(name, layout: GridLayout, values: np.ndarray, what: str, note: str,
     return figure
 
 
-def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks, spacing="log"):
+def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks, spacing="log",
+                 footer=None):
     """Spectral fluence of the picked points; frequency axis linear or log as the run's
-    spacing, the log y axis cut at the numerical noise (see log_floor)."""
+    spacing, the log y axis cut at the numerical noise (see log_floor); `footer` (the run's
+    safety note) goes below."""
     figure = _new_figure(8.0, 6.5)
     ax = figure.subplots()
     f_max = float(spectra_of_group["f"].max())
@@ -593,10 +599,11 @@ def plot_spectra(name, observers_of_group, spectra_of_group, layout, picks, spac
         right = ax.secondary_yaxis("right", functions=(lambda x: x * r2, lambda x: x / r2))
         right.set_ylabel("d²W/(df dΩ) = R² F (J/(Hz·sr))")
     handles, labels = ax.get_legend_handles_labels()
-    figure.legend(handles, labels, loc="outside lower center", ncols=2, fontsize="small")
+    figure.legend(handles, labels, loc="outside upper center", ncols=2, fontsize="small")
     total = spectra_of_group["point"].nunique()
     note = f" ({len(picks)} of {total} points)" if len(picks) < total else ""
     ax.set_title(f"{name}: spectral fluence F = 2ε₀c|Ẽ(f)|²{note}")
+    _footer(figure, footer, 110)
     return figure
 
 
@@ -747,7 +754,8 @@ class PlotExporter:
         written = []
         if len(fields):
             present = [p for p in picks if p in set(fields["point"])]
-            figure = plot_waveforms(name, observers, fields, layout, present, plan["step_s"])
+            figure = plot_waveforms(name, observers, fields, layout, present, plan["step_s"],
+                                    plan["footer"])
             written.append(_save(figure, directory, f"{stem}_waveforms.png", settings.dpi))
         total = None
         if layout is not None and energy is not None:
@@ -760,7 +768,8 @@ class PlotExporter:
                               method, per_sr, plan["footer"])
             written.append(_save(figure, directory, f"{stem}_fluence_map.png", settings.dpi))
         if spectra is not None:
-            figure = plot_spectra(name, observers, spectra, layout, picks, plan["spacing"])
+            figure = plot_spectra(name, observers, spectra, layout, picks, plan["spacing"],
+                                  plan["footer"])
             written.append(_save(figure, directory, f"{stem}_spectrum.png", settings.dpi))
         if spectra is not None and layout is not None and plan["band"] is not None:
             band = plan["band"]

@@ -14,6 +14,7 @@ import pytest
 from scipy import constants, special
 
 from lagfield.errors import ConfigError
+from lagfield.outputs import SAFETY_NOTE
 from lagfield.plugins import plots
 from lagfield.signals import Signals
 
@@ -147,6 +148,24 @@ def test_exporter_writes_every_figure_as_png(tmp_path, signals):
         width, height = png_size(tmp_path / name)
         assert 200 <= width <= 2000 and 200 <= height <= 2000
         assert (tmp_path / name).stat().st_size > 5000  # axes, labels and curves drawn
+
+
+def test_every_figure_carries_the_safety_note(tmp_path, signals, monkeypatch):
+    """Figures can reach people who decide on exposure or shielding: each one shows the
+    run's note that lagfield gives field estimates only (below the plots)."""
+    footers = {}
+    save = plots._save
+
+    def recording(figure, directory, file_name, dpi):
+        label = figure._supxlabel
+        footers[file_name] = " ".join(label.get_text().split()) if label is not None else ""
+        return save(figure, directory, file_name, dpi)
+
+    monkeypatch.setattr(plots, "_save", recording)
+    monkeypatch.setattr(signals, "summary", {"note": SAFETY_NOTE})
+    names = plots.PlotExporter().write(signals, tmp_path, {"dpi": 40})
+    assert sorted(footers) == sorted(names) and len(names) == 10
+    assert all(text == SAFETY_NOTE for text in footers.values()), footers
 
 
 def test_dpi_option_scales_the_image(tmp_path, signals):
