@@ -1,6 +1,7 @@
-"""Bin integrals of E and B of one observer group, to which particles are added: per
-particle the source span and samples (`sources`), then, in chunks, the compiled deposit
-(kernels/deposit.py); spectra and fluence are fed the same source samples."""
+"""Bin integrals of E and B of one observer group, to which particles are added in batches:
+the batch's source spans and samples in compiled calls (`sources.sample_motions`), then, in
+chunks, the compiled deposit (kernels/deposit.py); spectra and fluence are fed the same
+source samples, particle by particle."""
 
 from __future__ import annotations
 

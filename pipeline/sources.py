@@ -2,7 +2,9 @@
 window sees (closed form on the ballistic extensions, a retarded-time solve inside the
 track), the reach check, and the adaptive source samples, refined until no step exceeds
 what the observer bins, the distance and the local κ allow (kernels/refine.py,
-kernels/sampling.py).
+kernels/sampling.py). `sample_motions` does all of it for a batch of particles in compiled
+calls (kernels/batch.py), one block of particles per thread; `source_span` and
+`source_samples` for one particle.
 """
 
 from __future__ import annotations
