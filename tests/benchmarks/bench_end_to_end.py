@@ -115,20 +115,26 @@ def run_numpy(scenario, tracks_path: Path, groups=None, refined: bool = False):
     return time.perf_counter() - start, result
 
 
-def kernel_share(profiler) -> float:
-    """Fraction of the profiled time spent inside lagfield's compiled kernels (own time of
-    the functions defined in lagfield/kernels/, called from Python)."""
+def kernel_share(profiler) -> tuple[float, float]:
+    """(inside, waiting): fractions of the profiled time spent inside lagfield's compiled
+    kernels called from the main thread (own time of the functions defined in
+    lagfield/kernels/), and waiting for other threads. cProfile sees the main thread only;
+    the source sampling of a batch runs in a thread pool, whose threads run compiled kernels
+    only (in runs without spectra), so the wait is kernel time too there."""
     stats = pstats.Stats(profiler).stats
     kernels = str(Path(lagfield.__file__).parent / "kernels") + os.sep
     inside = sum(row[2] for (filename, _, _), row in stats.items()
                  if filename.startswith(kernels))
+    waiting = sum(row[2] for (_, _, name), row in stats.items()
+                  if name == "<method 'acquire' of '_thread.lock' objects>")
     total = sum(row[2] for row in stats.values())
-    return inside / total if total else 0.0
+    return (inside / total, waiting / total) if total else (0.0, 0.0)
 
 
 def print_profile(profiler, top: int = 8) -> None:
-    print(f"      compiled kernels: {kernel_share(profiler):.0%} of the run's time "
-          "(own time under cProfile)")
+    inside, waiting = kernel_share(profiler)
+    print(f"      compiled kernels: {inside:.0%} of the run's time in the main thread, and "
+          f"{waiting:.0%} waiting for the sampling threads (own time under cProfile)")
     out = io.StringIO()
     pstats.Stats(profiler, stream=out).sort_stats("tottime").print_stats(top)
     lines = [line for line in out.getvalue().splitlines() if line.strip()]
