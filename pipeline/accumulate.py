@@ -69,12 +69,11 @@ class FieldAccumulator:
     def add(self, motion: Motion) -> None:
         self.add_batch([motion])
 
-    def add_batch(self, motions, pool=None, threads: int = 1) -> None:
-        """Add motions (a list of Motion); pool: a thread pool of `threads` threads that
-        share their source sampling (see `sources.sample_motions`)."""
+    def add_batch(self, motions) -> None:
+        """Add motions (a list of Motion), their source sampling shared among threads
+        (`sources.sample_motions`)."""
         runs = sample_motions(motions, self.group, self._span_arguments,
-                              self.settings.sampling_resolution_s(), self.settings.step_s,
-                              pool, threads)
+                              self.settings.sampling_resolution_s(), self.settings.step_s)
         for run, t, columns, offsets, ends in runs:
             self._per_particle(run, t, columns, offsets)
             scale = np.array([m.track.charge_c * m.track.weight for m in run])

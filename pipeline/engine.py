@@ -10,11 +10,8 @@ driver; the arithmetic is in `lagfield.kernels`.
 
 from __future__ import annotations
 
-import concurrent.futures
 import dataclasses
 import math
-
-import numba
 
 from .accumulate import SAMPLES_PER_KERNEL_CALL, FieldAccumulator, GroupFields, add_results
 from .motion import checked_motions
@@ -103,15 +100,13 @@ def compute_fields(tracks, groups, settings: FieldSettings, *, spectrum=None, en
         windows = group_windows(groups, ends, settings)
     accumulators = [FieldAccumulator(group, start, n_bins, settings, spectrum)
                     for group, (start, n_bins) in zip(groups, windows, strict=True)]
-    threads = numba.get_num_threads()
-    with concurrent.futures.ThreadPoolExecutor(threads) as pool:
-        for batch in _batches(tracks):
-            motions = checked_motions(batch, settings.resolution_s(), path=path,
-                                      degree=settings.degree, extend=settings.extend,
-                                      smoothing_m=settings.smoothing_m,
-                                      u_offset_s=settings.u_offset_s)
-            for accumulator in accumulators:
-                accumulator.add_batch(motions, pool, threads)
-                if progress is not None:
-                    progress(len(motions))
+    for batch in _batches(tracks):
+        motions = checked_motions(batch, settings.resolution_s(), path=path,
+                                  degree=settings.degree, extend=settings.extend,
+                                  smoothing_m=settings.smoothing_m,
+                                  u_offset_s=settings.u_offset_s)
+        for accumulator in accumulators:
+            accumulator.add_batch(motions)
+            if progress is not None:
+                progress(len(motions))
     return [accumulator.result() for accumulator in accumulators]

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import threads
 from .errors import LagfieldError, ObserverError
 from .kernels import batch, refine
 from .kernels import motion as motion_kernels
@@ -99,45 +100,42 @@ def _runs(motions):
         yield run
 
 
-def _blocks(count: int, threads: int) -> list:
-    """(first, stop) of up to `threads` contiguous blocks of count motions, each of at
+def _blocks(count: int, n_threads: int) -> list:
+    """(first, stop) of up to n_threads contiguous blocks of count motions, each of at
     least MOTIONS_PER_THREAD."""
-    pieces = max(1, min(threads, count // MOTIONS_PER_THREAD))
+    pieces = max(1, min(n_threads, count // MOTIONS_PER_THREAD))
     edges = np.linspace(0, count, pieces + 1).astype(int)
     return list(zip(edges[:-1].tolist(), edges[1:].tolist(), strict=True))
 
 
-def sample_motions(motions, group, arguments, resolution_s: float, bin_s: float, pool=None,
-                   threads: int = 1):
+def sample_motions(motions, group, arguments, resolution_s: float, bin_s: float):
     """The source samples of many motions at the points of `group` (compiled, no Python per
     particle; `kernels.batch.sample_rows`): a list, per block of consecutive motions (of one
     group of motions, sampled in one thread), of (motions, t (N,), columns, offsets (M + 1,),
     ends (M, 2, END_COLUMNS)), the columns as `source_samples` gives them and motion i's
     samples at offsets[i]:offsets[i + 1]. arguments: `retarded.span_arguments` of the
-    group's geometry and window; resolution_s, bin_s as for `source_samples`; pool: a pool of
-    `threads` threads that share the motions of a run (None: this thread). Raises the
-    error of the first motion whose sampling fails, as `source_samples` would."""
+    group's geometry and window; resolution_s, bin_s as for `source_samples`. The blocks
+    are shared among numba's threads (`threads.each`). Raises the error of the first motion
+    whose sampling fails, as `source_samples` would."""
     out = []
     for run in _runs(motions):
         header, values = run[0].group_record
         rows = np.array([motion.row for motion in run], dtype=np.int64)
-        knots = np.stack([motion.track.t_s for motion in run]).astype(float, copy=False)
+        knots = np.ascontiguousarray(run[0].track.t_s, dtype=float)  # shared by the group
 
         def sample(block, rows=rows, knots=knots, header=header, values=values):
             first, stop = block
             return batch.sample_rows(
-                header, values, rows[first:stop], knots[first:stop], *arguments,
+                header, values, rows[first:stop], knots, *arguments,
                 SUBDIVISIONS_PER_INTERVAL, float(resolution_s), float(bin_s),
                 SAMPLES_PER_BIN, ANGLE_TOLERANCE, UNIFORM_SPLIT_MAX,
                 MAX_SAMPLES_PER_PARTICLE, MAX_REFINEMENTS, REACH_DISTANCE_M)
 
-        blocks = _blocks(len(run), 1 if pool is None else threads)
-        results = list(pool.map(sample, blocks)) if len(blocks) > 1 else [sample(blocks[0])]
-        for (first, _), result in zip(blocks, results, strict=True):
+        blocks = _blocks(len(run), threads.count())
+        for (first, stop), result in zip(blocks, threads.each(sample, blocks), strict=True):
             failed, status, point, distance = result[4:]
-            if failed >= 0:
+            if failed >= 0:  # blocks in order: the first failing motion
                 raise sampling_error(status, run[first + failed], group, point, distance)
-        for (first, stop), result in zip(blocks, results, strict=True):
             out.append((run[first:stop], *result[:4]))
     return out
 

@@ -25,14 +25,12 @@ one transform per particle and point.
 from __future__ import annotations
 
 import collections
-import concurrent.futures
 import dataclasses
 import threading
 
-import numba
 import numpy as np
 
-from . import transforms
+from . import threads, transforms
 from .constants import COULOMB, EPS0_C
 from .kernels import expansion, point_spectra, quadrature
 from .tables import SPECTRUM_COLUMNS, spectra_table
@@ -250,17 +248,10 @@ class SpectrumAccumulator:
         return terms, (t_out[:rows], values[:, :rows].T)
 
     def _each_point(self, work) -> None:
-        """work(p) for every point p, in as many threads as numba has (each point writes
-        its own rows; the transforms and kernels release the GIL and plans are per thread,
-        so results do not depend on the number of threads)."""
-        threads = min(numba.get_num_threads(), self.group.n_points)
-        if threads <= 1:
-            for p in range(self.group.n_points):
-                work(p)
-            return
-        with concurrent.futures.ThreadPoolExecutor(threads) as pool:
-            for _ in pool.map(work, range(self.group.n_points)):
-                pass
+        """work(p) for every point p, shared among threads (`threads.each`: each point
+        writes its own rows; plans are per thread, so results do not depend on the number
+        of threads)."""
+        threads.each(work, range(self.group.n_points))
 
     def _half_spans(self, batch) -> list:
         """Per particle of batch [(t, state, …)], half its longest observer-time span over

@@ -53,6 +53,16 @@ def window(group, settings, tracks):
     return engine.group_windows([group], ends, settings)[0]
 
 
+def per_motion(blocks):
+    """(motion, t, columns, ends) of each motion of `sources.sample_motions`' blocks, in
+    order, its samples cut out of its block."""
+    for run, t, columns, offsets, ends in blocks:
+        assert offsets[0] == 0 and offsets[-1] == t.size and len(offsets) == len(run) + 1
+        for i, motion in enumerate(run):
+            part = slice(offsets[i], offsets[i + 1])
+            yield motion, t[part], tuple(column[part] for column in columns), ends[i]
+
+
 @pytest.mark.parametrize("momenta", [True, False])
 def test_batch_gives_each_particles_own_samples_and_ends(momenta):
     tracks = helix_tracks(5, momenta)
@@ -63,22 +73,23 @@ def test_batch_gives_each_particles_own_samples_and_ends(momenta):
     geometry = group.geometry(False)
     arguments = span_arguments(geometry, *edges, "ballistic")
     motions = build_motions(tracks)
-    ((run, t, columns, offsets, ends),) = sources.sample_motions(
-        motions, group, arguments, settings.sampling_resolution_s(), settings.step_s)
-    assert len(run) == 5 and offsets[0] == 0 and offsets[-1] == t.size
-    for i, motion in enumerate(motions):
+    blocks = sources.sample_motions(motions, group, arguments,
+                                    settings.sampling_resolution_s(), settings.step_s)
+    sampled = list(per_motion(blocks))
+    assert [item[0] for item in sampled] == motions
+    for motion, t, columns, ends in sampled:
         span, seen = sources.source_span(motion, geometry, *edges, "ballistic", arguments)
         t_one, state_one = sources.source_samples(motion, group, geometry, span,
                                                   settings.sampling_resolution_s(), seen,
                                                   bin_s=settings.step_s)
-        assert np.array_equal(t[offsets[i]:offsets[i + 1]], t_one)
+        assert np.array_equal(t, t_one)
         for mine, theirs in zip(columns, state_one, strict=True):
-            assert np.array_equal(mine[offsets[i]:offsets[i + 1]], theirs)
+            assert np.array_equal(mine, theirs)
         pos, beta, inv_g2, _ = motion.evaluate(np.array([motion.t_first, motion.t_last]))
-        assert np.array_equal(ends[i, :, deposit.END_T], [motion.t_first, motion.t_last])
-        assert np.array_equal(ends[i, :, deposit.END_X:deposit.END_X + 3], pos)
-        assert np.array_equal(ends[i, :, deposit.END_BX:deposit.END_BX + 3], beta)
-        assert np.array_equal(ends[i, :, deposit.END_IG2], inv_g2)
+        assert np.array_equal(ends[:, deposit.END_T], [motion.t_first, motion.t_last])
+        assert np.array_equal(ends[:, deposit.END_X:deposit.END_X + 3], pos)
+        assert np.array_equal(ends[:, deposit.END_BX:deposit.END_BX + 3], beta)
+        assert np.array_equal(ends[:, deposit.END_IG2], inv_g2)
 
 
 def test_far_field_samples_only_the_track_and_stops_where_it_ends():
@@ -91,11 +102,12 @@ def test_far_field_samples_only_the_track_and_stops_where_it_ends():
     start_s, n_bins = window(group, settings, tracks)
     edges = (start_s - 0.5e-14 - 1e-12, start_s - 0.5e-14 + n_bins * 1e-14 + 1e-12)
     arguments = span_arguments(group.geometry(True), *edges, "ballistic")
-    ((_, t, columns, offsets, _),) = sources.sample_motions(
-        build_motions(tracks), group, arguments, settings.sampling_resolution_s(),
-        settings.step_s)
-    for i, track in enumerate(tracks):
-        mine, accel = t[offsets[i]:offsets[i + 1]], columns[3][offsets[i]:offsets[i + 1]]
+    blocks = sources.sample_motions(build_motions(tracks), group, arguments,
+                                    settings.sampling_resolution_s(), settings.step_s)
+    sampled = list(per_motion(blocks))
+    assert len(sampled) == len(tracks)
+    for track, (_, mine, columns, _) in zip(tracks, sampled, strict=True):
+        accel = columns[3]
         assert mine[0] == track.t_s[0] and mine[-1] == track.t_s[-1]
         assert mine[1] == track.t_s[0] and mine[-2] == track.t_s[-1]
         assert np.all(accel[[0, -1]] == 0.0) and np.all(np.abs(accel[[1, -2]]).sum(axis=1) > 0)

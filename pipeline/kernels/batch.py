@@ -18,24 +18,22 @@ import numpy as np
 
 from ._jit import jit
 from .deposit import END_BX, END_COLUMNS, END_IG2, END_T, END_X
-from .motion import BETA, INV_G2, POS, STATE_WIDTH, state_columns, state_into
+from .motion import BREAKS, ENDS_BETA, ENDS_INV_G2, ENDS_R, PIECES, STATE_WIDTH, state_columns
 from .refine import OK, _copy_row, _grown, _zero_acceleration, refine
 from .retarded import source_span
 
 
 @jit
-def _ends_into(header, values, t_first, t_last, extend_none, ends, i):
+def _ends_into(header, values, extend_none, ends, i):
     """ends[i] (2, END_COLUMNS): time, position, velocity and 1/γ² of the track's first and
-    last sample, where its extensions start (times ∓inf with extend_none: no extensions)."""
-    row = np.empty((1, STATE_WIDTH))
+    last sample, where its extensions start, as the motion record holds them (times ∓inf
+    with extend_none: no extensions)."""
     for e in range(2):
-        t = t_first if e == 0 else t_last
-        state_into(header, values, t, row, 0)
-        ends[i, e, END_T] = t
+        ends[i, e, END_T] = values[header[BREAKS] + e * header[PIECES]]
         for c in range(3):
-            ends[i, e, END_X + c] = row[0, POS + c]
-            ends[i, e, END_BX + c] = row[0, BETA + c]
-        ends[i, e, END_IG2] = row[0, INV_G2]
+            ends[i, e, END_X + c] = values[header[ENDS_R] + 3 * e + c]
+            ends[i, e, END_BX + c] = values[header[ENDS_BETA] + 3 * e + c]
+        ends[i, e, END_IG2] = values[header[ENDS_INV_G2] + e]
     if extend_none:
         ends[i, 0, END_T] = -np.inf
         ends[i, 1, END_T] = np.inf
@@ -45,8 +43,8 @@ def _ends_into(header, values, t_first, t_last, extend_none, ends, i):
 def sample_rows(header, values, rows, knots, targets, far_distance, origin, far, edge_lo,
                 edge_hi, extend_none, subdivisions, resolution_s, bin_s, per_bin, tolerance,
                 uniform_split_max, max_samples, max_depth, reach_m):
-    """The source samples of motions rows (M,) of the group (header, values (G, L)), the
-    tracks sampled at knots (M, n) s, over the span whose light the points' windows see
+    """The source samples of motions rows (M,) of the group (header, values (G, L)), whose
+    tracks are all sampled at knots (n,) s, over the span whose light the points' windows see
     (targets (P, 3) … extend_none as `retarded.source_span` takes them; the refinement's
     rules as `refine.refine` takes them):
     (t (N,), columns, offsets (M + 1,), ends (M, 2, END_COLUMNS), failed, status, point,
@@ -63,11 +61,11 @@ def sample_rows(header, values, rows, knots, targets, far_distance, origin, far,
     t_all = np.empty(1024)
     state_all = np.empty((1024, STATE_WIDTH))
     n = 0
+    t_first = knots[0]
+    t_last = knots[knots.shape[0] - 1]
     for i in range(m):
         record = values[rows[i]]
-        t_first = knots[i, 0]
-        t_last = knots[i, knots.shape[1] - 1]
-        _ends_into(header, record, t_first, t_last, extend_none, ends, i)
+        _ends_into(header, record, extend_none, ends, i)
         source_span(header, record, targets, far_distance, origin, far, edge_lo, edge_hi,
                     extend_none, seen_lo, seen_hi)
         t_lo = seen_lo.min()
@@ -82,7 +80,7 @@ def sample_rows(header, values, rows, knots, targets, far_distance, origin, far,
                 seen_lo[p] = min(max(seen_lo[p], t_lo), t_hi)
                 seen_hi[p] = min(max(seen_hi[p], t_lo), t_hi)
         status, t, state, point, distance = refine(
-            header, record, knots[i], t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
+            header, record, knots, t_lo, t_hi, subdivisions, targets, seen_lo, seen_hi,
             far, resolution_s, bin_s, per_bin, tolerance, uniform_split_max, max_samples,
             max_depth, reach_m)
         if status != OK:

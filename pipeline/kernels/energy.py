@@ -11,6 +11,7 @@ import numpy as np
 
 from ._jit import jit
 from .pointwise import fields_kappa
+from .quadrature import node_slope, node_terms
 
 
 @jit(inline=True)
@@ -54,17 +55,9 @@ def window_energy(t_src, t_obs, e, kappa, start, stop):
                                    start, stop)
         h_left = t_here - t_prev if i > 0 else 0.0
         h_right = t_next - t_here if i < count - 1 else 0.0
-        slope = 0.0
-        if h_left > 0.0 and h_right > 0.0:
-            left = (f_here - f_prev) / h_left
-            right = (f_next - f_here) / h_right
-            slope = (h_right * left + h_left * right) / (h_left + h_right)
-        elif h_left > 0.0:
-            slope = (f_here - f_prev) / h_left
-        elif h_right > 0.0:
-            slope = (f_next - f_here) / h_right
-        total += (0.5 * (h_left + h_right) * f_here
-                  + (h_right * h_right - h_left * h_left) / 12.0 * slope)
+        weight, correction = node_terms(h_left, h_right)
+        total += weight * f_here + correction * node_slope(h_left, h_right, f_prev, f_here,
+                                                           f_next)
         t_prev, f_prev = t_here, f_here
         t_here, f_here = t_next, f_next
     return total

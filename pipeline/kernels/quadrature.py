@@ -9,6 +9,29 @@ from __future__ import annotations
 from ._jit import jit
 
 
+@jit(inline=True)
+def node_terms(h_left, h_right):
+    """(w, c) of a node with gaps h_left, h_right to its neighbours (0 at an end): the
+    trapezoid weight and the Euler–Maclaurin end correction (h_right² − h_left²)/12."""
+    return 0.5 * (h_left + h_right), (h_right * h_right - h_left * h_left) / 12.0
+
+
+@jit(inline=True)
+def node_slope(h_left, h_right, previous, here, following):
+    """E′ at a node from its neighbours' values: the mean of the two one-sided slopes
+    weighted by the opposite gaps, or the one slope there is (a gap of 0: an end, or a
+    repeated time marking a jump of E)."""
+    if h_left > 0.0 and h_right > 0.0:
+        left = (here - previous) / h_left
+        right = (following - here) / h_right
+        return (h_right * left + h_left * right) / (h_left + h_right)
+    if h_left > 0.0:
+        return (here - previous) / h_left
+    if h_right > 0.0:
+        return (following - here) / h_right
+    return 0.0
+
+
 @jit
 def corrected_trapezoid(t, e, start, stop, a, b):
     """Fill a (3, N) and b (3, N) for samples t (N,) (non-decreasing; a repeated time
@@ -18,23 +41,13 @@ def corrected_trapezoid(t, e, start, stop, a, b):
     for j in range(n):
         h_left = t[j] - t[j - 1] if j > 0 else 0.0
         h_right = t[j + 1] - t[j] if j < n - 1 else 0.0
-        weight = 0.5 * (h_left + h_right)
+        weight, correction = node_terms(h_left, h_right)
         if j == 0:
             weight += t[0] - start
         if j == n - 1:
             weight += stop - t[n - 1]
-        correction = (h_right * h_right - h_left * h_left) / 12.0
         for c in range(3):
-            has_left = h_left > 0.0
-            has_right = h_right > 0.0
-            slope = 0.0
-            if has_left and has_right:
-                left = (e[j, c] - e[j - 1, c]) / h_left
-                right = (e[j + 1, c] - e[j, c]) / h_right
-                slope = (h_right * left + h_left * right) / (h_left + h_right)
-            elif has_left:
-                slope = (e[j, c] - e[j - 1, c]) / h_left
-            elif has_right:
-                slope = (e[j + 1, c] - e[j, c]) / h_right
+            slope = node_slope(h_left, h_right, e[max(j - 1, 0), c], e[j, c],
+                               e[min(j + 1, n - 1), c])
             a[c, j] = weight * e[j, c] + correction * slope
             b[c, j] = correction * e[j, c]
