@@ -6,6 +6,7 @@ source samples, particle by particle."""
 from __future__ import annotations
 
 import dataclasses
+import math
 
 import numpy as np
 
@@ -15,7 +16,7 @@ from .kernels import deposit
 from .motion import Motion
 from .retarded import span_arguments
 from .sources import sample_motions
-from .spectra import SpectrumAccumulator
+from .spectra import SpectrumAccumulator, filon_cheaper
 
 # Source samples buffered per deposit call: 14 floats each, held twice while a call is
 # assembled (100,000: about 22 MiB at the peak; 500,000 cost 90 MiB more, no faster).
@@ -65,6 +66,29 @@ class FieldAccumulator:
             self.spectra = SpectrumAccumulator(group, start_s, stop_s, spectrum, self.geometry)
         self.fluence = FluenceAccumulator(group, start_s, stop_s, self.geometry,
                                           spectrum is None or spectrum.coherent)
+        # observer-time scale the source samples resolve; None: not chosen yet (near-field
+        # spectra: by the first batch, see `_choose_spectra_sampling`)
+        self._resolution_s = settings.sampling_resolution_s()
+        if self.spectra is not None and not self.geometry.far and math.isfinite(
+                self._resolution_s):
+            self._resolution_s = None
+
+    def _choose_spectra_sampling(self, motions) -> list:
+        """The runs of `sources.sample_motions` for the group's first batch, sampled for the
+        field alone when the spectra's Filon-type quadrature on those samples is predicted
+        cheaper than refining them to resolve the top frequency (`spectra.filon_cheaper`),
+        else refined; the choice holds for the group's later batches."""
+        coarse = sample_motions(motions, self.group, self._span_arguments, math.inf,
+                                self.settings.step_s)
+        counts = np.concatenate([np.diff(offsets) for _, _, _, offsets, _ in coarse])
+        window_s = float(np.mean(self.spectra._window_s[1] - self.spectra._window_s[0]))
+        if filon_cheaper(counts, window_s, self.spectra.settings):
+            self._resolution_s = math.inf
+            self.spectra.exact_phase = True
+            return coarse
+        self._resolution_s = self.settings.sampling_resolution_s()
+        return sample_motions(motions, self.group, self._span_arguments, self._resolution_s,
+                              self.settings.step_s)
 
     def add(self, motion: Motion) -> None:
         self.add_batch([motion])
@@ -72,8 +96,11 @@ class FieldAccumulator:
     def add_batch(self, motions) -> None:
         """Add motions (a list of Motion), their source sampling shared among threads
         (`sources.sample_motions`)."""
-        runs = sample_motions(motions, self.group, self._span_arguments,
-                              self.settings.sampling_resolution_s(), self.settings.step_s)
+        if self._resolution_s is None:
+            runs = self._choose_spectra_sampling(motions)
+        else:
+            runs = sample_motions(motions, self.group, self._span_arguments,
+                                  self._resolution_s, self.settings.step_s)
         for run, t, columns, offsets, ends in runs:
             self._per_particle(run, t, columns, offsets)
             scale = np.array([m.track.charge_c * m.track.weight for m in run])

@@ -77,7 +77,9 @@ class FieldSettings:
         with spectra, a fraction of the period of the top frequency (their quadrature needs
         the phase resolved); for fields alone none (inf): a bin integral is the exact
         primitive interpolated between samples, so the samples need only follow the field's
-        own variation, which the distance and angle limits of `kernels.sampling` do."""
+        own variation, which the distance and angle limits of `kernels.sampling` do.
+        A near-field group whose spectra take the Filon-type quadrature samples as for fields
+        alone (`accumulate.FieldAccumulator`, `spectra.filon_cheaper`)."""
         if not self.max_frequency_hz:
             return math.inf
         return SAMPLES_PER_BIN / (SAMPLES_PER_PERIOD * self.max_frequency_hz)

@@ -20,6 +20,13 @@ keeps the source samples of several particles and, per point, makes one transfor
 all of them (or one per particle, if that is predicted cheaper), when SPECTRUM_BUFFER_SAMPLES
 are held and whenever the spectra are read. An incoherent run needs |Ẽ|² of each particle:
 one transform per particle and point.
+
+Near-field runs (whose ballistic extensions put each particle's light over the whole
+window) may instead keep the source samples the field alone needs and integrate them by
+the Filon-type quadrature (kernels/filon.py: the Hermite interpolant of the samples
+against the exact phase, any number of periods between two samples). `filon_cheaper`
+decides from a group's first batch: that quadrature costs samples × frequencies, the
+refinement SAMPLES_PER_PERIOD samples per period over the window and their transforms.
 """
 
 from __future__ import annotations
@@ -106,6 +113,32 @@ def coherent_plan(counts, spans_s, together_span_s, frequencies_hz, model=transf
     return ("together", route) if together_s <= each_s else ("each", routes)
 
 
+def filon_cheaper(coarse_counts, window_s: float, settings: SpectrumSettings,
+                  model=transforms.COST) -> bool:
+    """Whether the Filon-type quadrature on samples that follow the field alone (coarse_counts
+    per particle, as the sampling gives them without a frequency) is predicted cheaper than
+    the corrected trapezoid's routes on samples refined to SAMPLES_PER_PERIOD per period of
+    the top frequency over a window of window_s (each particle's light covering it, as the
+    ballistic extensions make it in the near field). The refined side counts its transforms
+    only, not its extra sampling and fields: a tie goes to the refined samples."""
+    f = settings.frequencies_hz
+    counts = np.asarray(coarse_counts, dtype=float)
+    if counts.size == 0:
+        return False
+    filon_s = model.filon_s(float(counts.sum()), f.size)
+    refined = counts + SAMPLES_PER_PERIOD * float(f.max()) * window_s
+    each_s = sum(predicted_best(int(n), f, window_s, model) for n in refined)
+    if settings.coherent:
+        each_s = min(each_s, predicted_best(int(refined.sum()), f, window_s, model))
+    return filon_s < each_s
+
+
+def predicted_best(n_samples: int, frequencies_hz, span_s: float, model=transforms.COST):
+    """Predicted seconds of the cheaper transform route for n_samples over span_s."""
+    route = transforms.choose(n_samples, frequencies_hz, span_s, model)
+    return transforms.predicted_s(n_samples, frequencies_hz, span_s, route, model)
+
+
 def fluence(spectrum: np.ndarray) -> np.ndarray:
     """F(f) = 2 ε0 c |Ẽ(f)|² summed over components, J/(m²·Hz)."""
     return 2.0 * EPS0_C * np.sum(np.abs(spectrum) ** 2, axis=-1)
@@ -146,6 +179,7 @@ class SpectrumAccumulator:
         self._pending = []  # (t, state, field scale) of particles not yet transformed
         self._pending_samples = 0
         self._weights = (0, None, None)  # (orders, re, im) of the expansion's band
+        self.exact_phase = False  # True: Filon-type quadrature (samples need not resolve f)
 
     @property
     def spectrum(self) -> np.ndarray:
@@ -173,12 +207,12 @@ class SpectrumAccumulator:
             return False
         if t.size:
             batch = [(t, state, COULOMB * charge_c)]
+            if self.exact_phase:
+                self._filon(batch, [weight], self._claim(exact, charge_c, weight))
+                return exact is not None
             halves = self._half_spans(batch)
             if self._expansion_cheaper(batch, halves, False):
-                energy = None
-                if exact is not None:
-                    energy = (np.array([exact.claim(charge_c, weight)]), exact.energy)
-                self._expansion(batch, halves, [weight], energy)
+                self._expansion(batch, halves, [weight], self._claim(exact, charge_c, weight))
                 return exact is not None
         packed = self._packed([(t, state, COULOMB * charge_c)])
 
@@ -190,6 +224,14 @@ class SpectrumAccumulator:
         self._each_point(point)
         return False
 
+    @staticmethod
+    def _claim(exact, charge_c: float, weight: float):
+        """(factors (1,), out (P,)) for the compiled kernels to add one particle's exact
+        ∫|E|² dt to `exact` (a fluence.FluenceAccumulator), or None without one."""
+        if exact is None:
+            return None
+        return np.array([exact.claim(charge_c, weight)]), exact.energy
+
     def flush(self) -> None:
         """Transform the held particles' samples into the coherent spectra."""
         if not self._pending:
@@ -197,6 +239,9 @@ class SpectrumAccumulator:
         pending, self._pending, self._pending_samples = self._pending, [], 0
         f = self.settings.frequencies_hz
         pending = [item for item in pending if item[0].size]
+        if pending and self.exact_phase:
+            self._filon(pending, None)
+            return
         halves = self._half_spans(pending)
         if pending and self._expansion_cheaper(pending, halves, True):
             self._expansion(pending, halves, None)
@@ -301,16 +346,31 @@ class SpectrumAccumulator:
                                                                   half_width, orders))
         _, weights_re, weights_im = self._weights
         t, state, offsets, scales = self._packed(batch)
-        coherent = weights is None
-        fluence_weights = np.zeros(len(batch)) if coherent else (
-            2.0 * EPS0_C * np.asarray(weights, dtype=float))
         point_spectra.point_spectra(
             t, *state, offsets, scales, *self._kernel, *self._window_s,
             2.0 * np.pi * f, 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
-            centre, half_width, weights_re, weights_im, coherent, fluence_weights,
-            self._spectrum, self.fluence,
-            *(energy if energy is not None else (np.zeros(len(batch)), np.zeros(1))))
+            centre, half_width, weights_re, weights_im,
+            *self._sinks(len(batch), weights, energy))
         self.transforms["expansion"] += len(batch) * self.group.n_points
+
+    def _filon(self, batch, weights, energy=None) -> None:
+        """As `_expansion`, by the Filon-type quadrature (kernels/filon.py), which any
+        spacing of the samples against the period suits."""
+        t, state, offsets, scales = self._packed(batch)
+        point_spectra.point_filon(
+            t, *state, offsets, scales, *self._kernel, *self._window_s,
+            2.0 * np.pi * self.settings.frequencies_hz, self.settings.taper == "hann",
+            *self._sinks(len(batch), weights, energy))
+        self.transforms["filon"] += len(batch) * self.group.n_points
+
+    def _sinks(self, n_particles: int, weights, energy) -> tuple:
+        """(coherent, fluence weights, spectrum, fluence, energy factors, energy) as the
+        compiled per-point kernels take them (see `_expansion`)."""
+        coherent = weights is None
+        fluence_weights = np.zeros(n_particles) if coherent else (
+            2.0 * EPS0_C * np.asarray(weights, dtype=float))
+        factors, out = energy if energy is not None else (np.zeros(n_particles), np.zeros(1))
+        return coherent, fluence_weights, self._spectrum, self.fluence, factors, out
 
     def _transform(self, t, values, route):
         f = self.settings.frequencies_hz

@@ -14,6 +14,11 @@ A third route, the Jacobi–Anger expansion (kernels/expansion.py), costs sample
 plus frequencies × orders, the orders set by the window's span × the band's width: the
 spectra accumulator takes it for short windows (far field), where it beats both
 (`CostModel.expansion_s`, constants from tests/benchmarks/bench_spectra.py).
+
+A fourth, the Filon-type quadrature (kernels/filon.py), costs samples × frequencies but
+needs no sample per period: near-field runs take it when it is predicted cheaper than
+refining the samples to resolve the top frequency (`spectra.filon_cheaper`,
+`CostModel.filon_s`, constant from tests/benchmarks/bench_spectra.py --filon).
 """
 
 from __future__ import annotations
@@ -61,6 +66,7 @@ class CostModel:
     nufft_per_grid_log_s: float  # the FFT of the fine grid of G points: × G·log2(G)
     expansion_per_sample_order_s: float = 4.49e-09  # Bessel table and moments: × N·orders
     expansion_per_frequency_order_s: float = 1.57e-09  # the Chebyshev sums: × F·orders
+    filon_per_term_s: float = 1.54e-08  # Filon-type quadrature (kernels/filon.py): × N·F
 
     def direct_s(self, n_samples: int, n_frequencies: int) -> float:
         return self.direct_per_term_s * n_samples * n_frequencies
@@ -77,6 +83,11 @@ class CostModel:
         """One window by the Jacobi–Anger expansion (kernels/expansion.py)."""
         return orders * (self.expansion_per_sample_order_s * n_samples
                          + self.expansion_per_frequency_order_s * n_frequencies)
+
+
+    def filon_s(self, n_samples: int, n_frequencies: int) -> float:
+        """One window by the Filon-type quadrature (kernels/filon.py)."""
+        return self.filon_per_term_s * n_samples * n_frequencies
 
 
 def _n_log(count: float) -> float:

@@ -4,7 +4,8 @@ of threads) the pointwise fields, the samples inside the point's window, the wei
 the corrected trapezoid rule and the Fourier sums by the Jacobi–Anger expansion
 (kernels/expansion.py); added coherently (Ẽ) or incoherently (weighted spectral fluence).
 The same fields give each particle's ∫|E|² dt over the window (`energy.window_energy`) when
-it is asked for, so the exact fluence costs no second pass.
+it is asked for, so the exact fluence costs no second pass. `point_filon` does the same with
+the Filon-type quadrature (kernels/filon.py) in place of the trapezoid and the expansion.
 """
 
 from __future__ import annotations
@@ -17,21 +18,17 @@ import numpy as np
 from ._jit import jit
 from .energy import window_energy
 from .expansion import VECTORS, expansion_sums
+from .filon import filon_sums
 from .pointwise import fields_kappa
 from .quadrature import corrected_trapezoid
 
 
 @jit
-def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
-    """(first, count): the samples inside [start, stop] (t_obs increasing) and, in
-    values[:, :count], the two sums' coefficients of `spectra.quadrature_terms` (fields ×
-    scale, Hann taper when `hann`)."""
+def _windowed(t_obs, e, start, stop, scale, hann, fields):
+    """(first, count): the samples inside [start, stop] (t_obs increasing), their fields
+    × scale (× the Hann taper when `hann`) in fields[:count]."""
     first = np.searchsorted(t_obs, start, side="left")
-    last = np.searchsorted(t_obs, stop, side="right")
-    count = last - first
-    if count < 2:
-        return first, 0
-    fields = np.empty((count, 3))
+    count = np.searchsorted(t_obs, stop, side="right") - first
     for j in range(count):
         taper = scale
         if hann:
@@ -39,9 +36,21 @@ def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
                                           / (stop - start))
         for c in range(3):
             fields[j, c] = e[first + j, c] * taper
+    return first, count
+
+
+@jit
+def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
+    """(first, count): the samples inside [start, stop] (t_obs increasing) and, in
+    values[:, :count], the two sums' coefficients of `spectra.quadrature_terms` (fields ×
+    scale, Hann taper when `hann`)."""
+    fields = np.empty((t_obs.shape[0], 3))
+    first, count = _windowed(t_obs, e, start, stop, scale, hann, fields)
+    if count < 2:
+        return first, 0
     a = np.empty((3, count))
     b = np.empty((3, count))
-    corrected_trapezoid(t_obs[first:last], fields, start, stop, a, b)
+    corrected_trapezoid(t_obs[first:first + count], fields[:count], start, stop, a, b)
     for c in range(3):
         for j in range(count):
             values[c, j] = a[c, j]
@@ -148,4 +157,49 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
                     else:
                         power += re * re + im * im
                 if not coherent:
+                    fluence[p, k] += fluence_weights[i] * power
+
+
+@jit(parallel=True)
+def point_filon(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, distance_m,
+                origin_m, start, stop, omega, hann, coherent, fluence_weights, spectrum,
+                fluence, energy_factors, energy):
+    """As `point_spectra`, with each particle's Ẽ at a point by the Filon-type quadrature
+    of kernels/filon.py (exact phase: any spacing of the samples against the period)
+    instead of the corrected trapezoid and the expansion."""
+    n_k = omega.shape[0]
+    most = _longest(offsets)
+    for p in numba.prange(targets.shape[0]):
+        t_obs = np.empty(most)
+        e = np.empty((most, 3))
+        kappa = np.empty(most)
+        fields = np.empty((most, 3))
+        part = np.empty((n_k, 3), dtype=np.complex128)
+        centre = 0.5 * (start[p] + stop[p])
+        for i in range(offsets.shape[0] - 1):
+            lo = offsets[i]
+            n = offsets[i + 1] - lo
+            hi = lo + n
+            fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
+                         targets[p], distance_m[p], origin_m, t_obs[:n], e[:n], kappa[:n])
+            if energy_factors[i] != 0.0:
+                energy[p] += energy_factors[i] * window_energy(
+                    t[lo:hi], t_obs[:n], e[:n], kappa[:n], start[p], stop[p])
+            first, count = _windowed(t_obs[:n], e[:n], start[p], stop[p], scales[i], hann,
+                                     fields)
+            if count < 2:
+                continue
+            part[:] = 0.0
+            filon_sums(t_obs[first:first + count] - centre, fields[:count], start[p] - centre,
+                       stop[p] - centre, omega, part)
+            if coherent:  # the sums ran in t − centre: shift them back
+                for k in range(n_k):
+                    shift = complex(math.cos(omega[k] * centre), -math.sin(omega[k] * centre))
+                    for c in range(3):
+                        spectrum[p, k, c] += part[k, c] * shift
+            else:
+                for k in range(n_k):
+                    power = 0.0
+                    for c in range(3):
+                        power += part[k, c].real ** 2 + part[k, c].imag ** 2
                     fluence[p, k] += fluence_weights[i] * power

@@ -13,7 +13,11 @@
     N, frequency counts F and window spans (as orders M), fitted as M·(a·N + b·F): the
     constants expansion_per_sample_order_s, expansion_per_frequency_order_s of
     transforms.COST, and beside them the NUFFT on the same windows.
-Run: python tests/benchmarks/bench_spectra.py [--fit | --expansion] (numba on all cores;
+(4) --filon: the Filon-type quadrature (kernels/filon.py) of one window timed over sample
+    counts N and frequency counts F (gaps from well below to many periods), fitted as a·N·F
+    per core and divided by numba's threads (a run shares the points among them): the
+    constant filon_per_term_s of transforms.COST.
+Run: python tests/benchmarks/bench_spectra.py [--fit | --expansion | --filon] (numba on all cores;
 finufft one thread, as in a run).
 """
 
@@ -134,6 +138,30 @@ def expansion_fit(options) -> None:
               f"{seconds * 1e3:7.3f} ms, NUFFT {nufft_s * 1e3:7.3f} ms")
 
 
+def filon_fit(options) -> None:
+    import numba
+
+    from lagfield.kernels import filon
+
+    rng = np.random.default_rng(11)
+    rows = []
+    for n, n_f in itertools.product((1_000, 10_000, 100_000), (4, 16, 64)):
+        x = np.sort(rng.uniform(-0.5, 0.5, n)) * 1e-9
+        e = rng.standard_normal((n, 3))
+        omega = 2 * np.pi * np.geomspace(1e-3, 10.0, n_f) * n / 1e-9  # gaps of 1e-3 … 10 periods
+        out = np.zeros((n_f, 3), complex)
+        seconds = best_of(options.repeats, filon.filon_sums, x, e, x[0], x[-1], omega, out)
+        rows.append((n, n_f, seconds))
+    r = np.array(rows)
+    per_term = np.sum(r[:, 2] * r[:, 0] * r[:, 1]) / np.sum((r[:, 0] * r[:, 1]) ** 2)
+    threads = numba.get_num_threads()
+    worst = np.max(np.abs(per_term * r[:, 0] * r[:, 1] / r[:, 2] - 1))
+    print(f"filon_per_term_s={per_term / threads:.3g} ({per_term * 1e9:.1f} ns per term on one "
+          f"core, shared by {threads} threads); worst misprediction {worst:.0%}")
+    for n, n_f, seconds in rows:
+        print(f"  N={n:6.0f} F={n_f:3.0f}: {seconds * 1e3:8.3f} ms")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--samples", type=int, default=100_000)
@@ -142,8 +170,12 @@ def main() -> None:
     parser.add_argument("--fit", action="store_true", help="time both routes and fit COST")
     parser.add_argument("--expansion", action="store_true",
                         help="time the expansion route and fit its COST constants")
+    parser.add_argument("--filon", action="store_true",
+                        help="time the Filon-type quadrature and fit its COST constant")
     options = parser.parse_args()
-    if options.expansion:
+    if options.filon:
+        filon_fit(options)
+    elif options.expansion:
         expansion_fit(options)
     elif options.fit:
         fit(options)
