@@ -27,16 +27,20 @@ SERIES_TERMS = 12  # powers θ⁰ … θ¹¹: the next term is below 1e-17 at SE
 
 
 def _series_table() -> tuple[np.ndarray, np.ndarray]:
-    """(even, odd) (5, SERIES_TERMS/2): the power series of ∫₀¹ b(x) e^(−iθx) dx for
-    b = 1 (μ_0) and the four Hermite basis cubics, as Re = Σ_i even[b, i] θ^(2i) and
-    Im = θ Σ_i odd[b, i] θ^(2i) (the term of θ^m is (−i)^m/m! ∫₀¹ b(x) x^m dx)."""
+    """(even, odd) (6, SERIES_TERMS/2): the power series of ∫₀¹ b(x) e^(−iθx) dx for
+    b = 1 (μ_0) and the four Hermite basis cubics, and of e^(−iθ) (row PHASE_ROW), as
+    Re = Σ_i even[b, i] θ^(2i) and Im = θ Σ_i odd[b, i] θ^(2i) (the term of θ^m is
+    (−i)^m/m! ∫₀¹ b(x) x^m dx, or (−i)^m/m!)."""
     basis = [{0: 1.0}, {0: 1.0, 2: -3.0, 3: 2.0}, {2: 3.0, 3: -2.0},
              {1: 1.0, 2: -2.0, 3: 1.0}, {2: -1.0, 3: 1.0}]  # power: coefficient
-    even = np.zeros((len(basis), SERIES_TERMS // 2))
+    even = np.zeros((len(basis) + 1, SERIES_TERMS // 2))
     odd = np.zeros_like(even)
-    for b, cubic in enumerate(basis):
+    for b, cubic in enumerate([*basis, None]):
         for m in range(SERIES_TERMS):
-            integral = sum(a / (power + m + 1) for power, a in cubic.items())
+            if cubic is None:  # the last row: e^(−iθ) itself
+                integral = 1.0
+            else:
+                integral = sum(a / (power + m + 1) for power, a in cubic.items())
             value = integral / math.factorial(m) * (-1.0) ** (m // 2)
             if m % 2:
                 odd[b, m // 2] = -value
@@ -46,6 +50,15 @@ def _series_table() -> tuple[np.ndarray, np.ndarray]:
 
 
 SERIES_EVEN, SERIES_ODD = _series_table()
+PHASE_ROW = 5
+
+
+@jit(inline=True)
+def phase_of(theta):
+    """e^(−iθ), by its series below SERIES_BELOW (cheaper than a cosine and a sine)."""
+    if abs(theta) < SERIES_BELOW:
+        return _series(PHASE_ROW, theta)
+    return complex(math.cos(theta), -math.sin(theta))
 
 
 @jit(inline=True)
@@ -117,7 +130,7 @@ def filon_sums(x, e, lo, hi, omega, out):
         if gap > 0.0:
             theta = omega[k] * gap
             edge = complex(math.cos(omega[k] * lo), -math.sin(omega[k] * lo))
-            weight = edge * gap * first_moment(theta, complex(math.cos(theta), -math.sin(theta)))
+            weight = edge * gap * first_moment(theta, phase_of(theta))
             for c in range(3):
                 acc[k, c] += weight * e[0, c]
     for j in range(n - 1):
@@ -133,7 +146,7 @@ def filon_sums(x, e, lo, hi, omega, out):
         d1x, d1y, d1z = slopes[j + 1, 0] * h, slopes[j + 1, 1] * h, slopes[j + 1, 2] * h
         for k in range(n_k):
             theta = omega[k] * h
-            step = complex(math.cos(theta), -math.sin(theta))
+            step = phase_of(theta)
             f0, f1, s0, s1 = hermite_weights(theta, step)
             scale = h * here[k]
             a0, a1, b0, b1 = scale * f0, scale * f1, scale * s0, scale * s1
@@ -146,7 +159,7 @@ def filon_sums(x, e, lo, hi, omega, out):
         if gap > 0.0:
             phase = complex(math.cos(omega[k] * x[n - 1]), -math.sin(omega[k] * x[n - 1]))
             theta = omega[k] * gap
-            weight = phase * gap * first_moment(theta, complex(math.cos(theta), -math.sin(theta)))
+            weight = phase * gap * first_moment(theta, phase_of(theta))
             for c in range(3):
                 acc[k, c] += weight * e[n - 1, c]
         for c in range(3):
