@@ -175,6 +175,7 @@ def add_results(first, second):
         if a.spectra is not None:
             a.spectra.spectrum += b.spectra.spectrum
             a.spectra.fluence += b.spectra.fluence
+            a.spectra.transforms.update(b.spectra.transforms)
         if a.fluence is not None:
             a.fluence.merge(b.fluence)
         a.source_samples += b.source_samples

@@ -38,7 +38,8 @@ def _relative(path: Path, base: Path) -> str:
 def group_record(result, align: str, n_particles: int) -> dict:
     """Time window and source sampling of one group's GroupFields: start, stop, step (s)
     and bins (per point when align is "point"); source samples in all and per particle per
-    output bin (bins of the window that spans every point's)."""
+    output bin (bins of the window that spans every point's); with spectra, the count of
+    each quadrature route taken (spectra.SpectrumAccumulator.transforms)."""
     step = float(result.step_s)
     start = np.asarray(result.start_s, dtype=float)
     bins = np.asarray(result.n_bins, dtype=np.int64)
@@ -50,8 +51,15 @@ def group_record(result, align: str, n_particles: int) -> dict:
                              "bins": int(bins[p])} for p in range(bins.size)]
     samples = int(getattr(result, "source_samples", 0))
     per_bin = samples / (max(n_particles, 1) * window["bins"])
-    return {"points": int(bins.size), "window": window, "source_samples": samples,
-            "source_samples_per_bin": per_bin}
+    record = {"points": int(bins.size), "window": window, "source_samples": samples,
+              "source_samples_per_bin": per_bin}
+    spectra = getattr(result, "spectra", None)
+    if spectra is not None:  # how many spectra (particles × points, or one per point for a
+        # buffer of particles) each route made
+        spectra.flush()
+        record["spectra_routes"] = {route: int(n) for route, n in
+                                    sorted(spectra.transforms.items())}
+    return record
 
 
 def u_offset_record(run_file_s, tracks) -> dict:

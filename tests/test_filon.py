@@ -213,8 +213,33 @@ def test_filon_and_refined_routes_agree(monkeypatch, coherent):
     else:
         ours, theirs = by_filon.spectra.fluence, refined.spectra.fluence
     assert np.abs(ours - theirs).max() < 2e-4 * np.abs(theirs).max()
+    # the exact ∫|E|² dt over the window, made beside the spectra (incoherent) or apart
+    assert by_filon.fluence.energy[0] > 0
+    assert by_filon.fluence.energy == pytest.approx(refined.fluence.energy, rel=1e-5)
 
 
 def test_cost_model_knows_the_route():
     assert transforms.COST.filon_s(1000, 10) == pytest.approx(
         1000 * 10 * transforms.COST.filon_per_term_s)
+
+
+def test_run_summary_counts_the_routes(tmp_path):
+    """run.json's group record says which quadrature made the spectra."""
+    import pandas as pd
+
+    import lagfield
+
+    v = C * math.sqrt(1 - 1 / GAMMA**2)
+    width_s = IMPACT_M / (GAMMA * v)
+    t = np.concatenate([-np.geomspace(1e-6, 1e-13, 30), [0.0], np.geomspace(1e-13, 1e-9, 15)])
+    u = GAMMA * v / C
+    pd.DataFrame({"particle": 0, "t": t, "x": 0.0, "y": 0.0, "z": v * t, "ux": 0.0, "uy": 0.0,
+                  "uz": u}).to_parquet(tmp_path / "tracks.parquet")
+    run = {"tracks": {"path": "tracks.parquet", "charge": ELECTRON_C},
+           "observers": [{"name": "pickup", "points": [[IMPACT_M, 0.0, 0.0]]}],
+           "time": {"step": width_s, "start": -400 * width_s, "stop": 400 * width_s},
+           "spectrum": {"frequencies": {"start": 0.05 / width_s / (2 * math.pi),
+                                        "stop": 4.0 / width_s / (2 * math.pi), "count": 12,
+                                        "spacing": "log"}}}
+    signals = lagfield.run(run, base_dir=tmp_path, write=False)
+    assert signals.summary["groups"]["pickup"]["spectra_routes"] == {"filon": 1}
