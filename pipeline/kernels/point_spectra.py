@@ -98,6 +98,24 @@ def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, di
     return row
 
 
+@jit(inline=True)
+def _particle_at_point(i, p, t, pos, beta, inv_g2, beta_dot, offsets, far, targets,
+                       distance_m, origin_m, start, stop, energy_factors, energy, t_obs, e,
+                       kappa):
+    """n: particle i's n samples seen from point p (observer times, fields per q/4πε0 and κ
+    into t_obs[:n], e[:n], kappa[:n]); adds energy_factors[i] × its ∫|E|² dt over p's
+    window to energy[p] when that factor is not 0."""
+    lo = offsets[i]
+    hi = offsets[i + 1]
+    n = hi - lo
+    fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
+                 targets[p], distance_m[p], origin_m, t_obs[:n], e[:n], kappa[:n])
+    if energy_factors[i] != 0.0:
+        energy[p] += energy_factors[i] * window_energy(t[lo:hi], t_obs[:n], e[:n], kappa[:n],
+                                                       start[p], stop[p])
+    return n
+
+
 @jit(parallel=True)
 def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, distance_m,
                   origin_m, start, stop, omega, top_omega, hann, centre, half_width,
@@ -127,14 +145,9 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
         out_re = np.empty((VECTORS, n_k))
         out_im = np.empty((VECTORS, n_k))
         for i in range(offsets.shape[0] - 1):
-            lo = offsets[i]
-            n = offsets[i + 1] - lo
-            hi = lo + n
-            fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
-                         targets[p], distance_m[p], origin_m, t_obs[:n], e[:n], kappa[:n])
-            if energy_factors[i] != 0.0:
-                energy[p] += energy_factors[i] * window_energy(
-                    t[lo:hi], t_obs[:n], e[:n], kappa[:n], start[p], stop[p])
+            n = _particle_at_point(i, p, t, pos, beta, inv_g2, beta_dot, offsets, far, targets,
+                                   distance_m, origin_m, start, stop, energy_factors, energy,
+                                   t_obs, e, kappa)
             first, count = _window_terms(t_obs[:n], e[:n], start[p], stop[p], scales[i],
                                          top_omega, hann, values)
             if count == 0:
@@ -177,14 +190,9 @@ def point_filon(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, d
         part = np.empty((n_k, 3), dtype=np.complex128)
         centre = 0.5 * (start[p] + stop[p])
         for i in range(offsets.shape[0] - 1):
-            lo = offsets[i]
-            n = offsets[i + 1] - lo
-            hi = lo + n
-            fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
-                         targets[p], distance_m[p], origin_m, t_obs[:n], e[:n], kappa[:n])
-            if energy_factors[i] != 0.0:
-                energy[p] += energy_factors[i] * window_energy(
-                    t[lo:hi], t_obs[:n], e[:n], kappa[:n], start[p], stop[p])
+            n = _particle_at_point(i, p, t, pos, beta, inv_g2, beta_dot, offsets, far, targets,
+                                   distance_m, origin_m, start, stop, energy_factors, energy,
+                                   t_obs, e, kappa)
             first, count = _windowed(t_obs[:n], e[:n], start[p], stop[p], scales[i], hann,
                                      fields)
             if count < 2:
