@@ -153,6 +153,17 @@ def kernel_geometry(geometry, n_points: int) -> tuple:
             np.ascontiguousarray(geometry.origin_m, dtype=float))
 
 
+def transverse_bases(directions) -> np.ndarray:
+    """(P, 2, 3): for each unit vector n of directions (P, 3), two unit vectors orthogonal
+    to n and to each other."""
+    n = np.asarray(directions, dtype=float)
+    helper = np.zeros_like(n)
+    helper[np.arange(n.shape[0]), np.argmin(np.abs(n), axis=1)] = 1.0  # least parallel axis
+    first = np.cross(n, helper)
+    first /= np.linalg.norm(first, axis=1)[:, None]
+    return np.stack([first, np.cross(n, first)], axis=1)
+
+
 def window_arrays(start_s, stop_s, n_points: int) -> tuple:
     """(start (P,), stop (P,)) s of the points' windows, contiguous, as the compiled per-point
     kernels take them (a scalar applies to every point)."""
@@ -180,6 +191,8 @@ class SpectrumAccumulator:
         self._pending_samples = 0
         self._weights = (0, None, None)  # (orders, re, im) of the expansion's band
         self.exact_phase = False  # True: Filon-type quadrature (samples need not resolve f)
+        # far field: per point two unit vectors across the direction n (P, 2, 3)
+        self._across = transverse_bases(self.geometry.targets) if self.geometry.far else None
 
     @property
     def spectrum(self) -> np.ndarray:
@@ -219,7 +232,7 @@ class SpectrumAccumulator:
         def point(p):
             terms, _ = self._point_terms(packed, p)
             for t_p, values in terms:
-                self.fluence[p] += weight * fluence(self._transform(t_p, values, None))
+                self.fluence[p] += weight * fluence(self._transform(t_p, values, None, p))
 
         self._each_point(point)
         return False
@@ -257,10 +270,10 @@ class SpectrumAccumulator:
                              - min(float(t[0]) for t, _ in terms))
             how, routes = coherent_plan([t.size for t, _ in terms], spans, together_span, f)
             if how == "together":
-                self._spectrum[p] += self._transform(*together, routes)
+                self._spectrum[p] += self._transform(*together, routes, p)
             else:
                 for (t, values), route in zip(terms, routes, strict=True):
-                    self._spectrum[p] += self._transform(t, values, route)
+                    self._spectrum[p] += self._transform(t, values, route, p)
 
         self._each_point(point)
 
@@ -284,10 +297,13 @@ class SpectrumAccumulator:
         start, stop = self._window_s
         t_out, values = np.empty(t.size), np.empty((transforms.N_VECTORS, t.size))
         firsts, counts = (np.empty(scales.size, dtype=np.int64) for _ in range(2))
+        across = self._across[p] if self._across is not None else np.empty((0, 3))
         rows = point_spectra.point_terms(
             t, *state, offsets, scales, far, targets[p], distance_m[p], origin_m, start[p],
             stop[p], 2.0 * np.pi * float(self.settings.frequencies_hz.max()),
-            self.settings.taper == "hann", t_out, values, firsts, counts)
+            self.settings.taper == "hann", across, t_out, values, firsts, counts)
+        if self._across is not None:  # transverse: 4 projected vectors
+            values = values[:4]
         terms = [(t_out[a:a + n], values[:, a:a + n].T)
                  for a, n in zip(firsts.tolist(), counts.tolist(), strict=True) if n]
         return terms, (t_out[:rows], values[:, :rows].T)
@@ -372,7 +388,10 @@ class SpectrumAccumulator:
         factors, out = energy if energy is not None else (np.zeros(n_particles), np.zeros(1))
         return coherent, fluence_weights, self._spectrum, self.fluence, factors, out
 
-    def _transform(self, t, values, route):
+    def _transform(self, t, values, route, p):
+        """Ẽ (F, 3) at point p of the quadrature terms (t (n,), values (n, 6), or in the far
+        field (n, 4): the radiation field is transverse, E·n = 0, so `_point_terms` projects
+        the terms on two unit vectors across n, a third less to transform)."""
         f = self.settings.frequencies_hz
         if t.size == 0:
             return np.zeros((f.size, 3), dtype=complex)
@@ -380,7 +399,11 @@ class SpectrumAccumulator:
             route = transforms.choose(t.size, f, float(t.max() - t.min()))
         with _COUNTING:  # points run in threads
             self.transforms[route] += 1
-        return spectrum_of_sums(transforms.fourier_sums(t, values, f, route), f)
+        sums = transforms.fourier_sums(t, values, f, route)
+        if self._across is not None:  # back from the projections (`_point_terms`)
+            across = self._across[p]  # (2, 3)
+            sums = np.concatenate([sums[:, :2] @ across, sums[:, 2:] @ across], axis=1)
+        return spectrum_of_sums(sums, f)
 
     def columns(self) -> dict:
         """{point, f, Ex_re … Ez_im (coherent), fluence, dW_df_dOmega (spheres)}: the

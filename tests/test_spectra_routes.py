@@ -201,3 +201,38 @@ def test_spectra_do_not_depend_on_the_number_of_threads(coherent):
     assert np.array_equal(*values)
     assert one.transforms == two.transforms
     assert one.transforms["expansion"] == 0  # the per-point path, in threads
+
+
+@pytest.mark.parametrize("coherent", [True, False], ids=["coherent", "incoherent"])
+def test_far_field_transforms_use_the_transverse_components(monkeypatch, coherent):
+    """In the far field the radiation field is transverse (E·n = 0), so the transforms take
+    its two components across n: the spectrum has no component along n (to rounding)
+    and equals that of all three components transformed, to AGREEMENT of its peak."""
+    monkeypatch.setattr(spectra.SpectrumAccumulator, "_expansion_cheaper",
+                        lambda *args: False)  # the transforms, not the expansion
+    projected = _spectra(monkeypatch, 10**9, coherent)
+    values = projected.spectrum if coherent else projected.fluence
+    assert set(projected.transforms) <= {"direct", "nufft"}
+    assert projected._across is not None
+    monkeypatch.setattr(spectra, "transverse_bases", lambda directions: None)
+    full = _spectra(monkeypatch, 10**9, coherent)
+    assert full._across is None
+    reference = full.spectrum if coherent else full.fluence
+    peak = np.abs(reference).max()
+    assert peak > 0
+    assert np.abs(values - reference).max() <= AGREEMENT * peak
+    if coherent:
+        n = projected.geometry.targets
+        along = np.einsum("pkc,pc->pk", values, n)
+        assert np.abs(along).max() <= 1e-12 * peak
+
+
+def test_transverse_bases_are_orthonormal_and_across_n():
+    rng = np.random.default_rng(2)
+    n = rng.standard_normal((50, 3))
+    n = np.concatenate([n, np.eye(3), -np.eye(3)])
+    n /= np.linalg.norm(n, axis=1)[:, None]
+    bases = spectra.transverse_bases(n)
+    for direction, (u0, u1) in zip(n, bases, strict=True):
+        matrix = np.stack([u0, u1, direction])
+        np.testing.assert_allclose(matrix @ matrix.T, np.eye(3), atol=1e-14)

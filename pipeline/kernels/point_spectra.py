@@ -69,11 +69,15 @@ def _longest(offsets):
 
 @jit
 def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, distance,
-                origin, start, stop, top_omega, hann, t_out, values_out, firsts, counts):
+                origin, start, stop, top_omega, hann, across, t_out, values_out, firsts,
+                counts):
     """The two Fourier sums' samples of every particle at one point (as
     `spectra.quadrature_terms` of its fields × scales[i] over [start, stop]), packed one
     particle after another: particle i's count[i] terms at rows firsts[i] … of t_out (N,)
-    and values_out (VECTORS, N). Returns the rows filled."""
+    and values_out (VECTORS, N). Returns the rows filled. With `across` (2, 3) given (not
+    empty: the far field, where E·n = 0), rows 0–3 hold the two sums projected on its two
+    unit vectors (a·u₀, a·u₁, b·u₀, b·u₁) and rows 4–5 are not written."""
+    project = across.shape[0] == 2
     most = _longest(offsets)
     t_obs = np.empty(most)
     e = np.empty((most, 3))
@@ -92,8 +96,16 @@ def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, di
         counts[i] = count
         for j in range(count):
             t_out[row + j] = t_obs[first + j]
-            for c in range(VECTORS):
-                values_out[c, row + j] = values[c, j]
+            if project:
+                for sum_ in range(2):
+                    for u in range(2):
+                        values_out[2 * sum_ + u, row + j] = (
+                            values[3 * sum_, j] * across[u, 0]
+                            + values[3 * sum_ + 1, j] * across[u, 1]
+                            + values[3 * sum_ + 2, j] * across[u, 2])
+            else:
+                for c in range(VECTORS):
+                    values_out[c, row + j] = values[c, j]
         row += count
     return row
 
