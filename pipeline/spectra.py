@@ -366,6 +366,7 @@ class SpectrumAccumulator:
             t, *state, offsets, scales, *self._kernel, *self._window_s,
             2.0 * np.pi * f, 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
             centre, half_width, weights_re, weights_im,
+            self._across if self._across is not None else np.empty((0, 2, 3)),
             *self._sinks(len(batch), weights, energy))
         self.transforms["expansion"] += len(batch) * self.group.n_points
 

@@ -103,15 +103,23 @@ def chebyshev_weights(omega, centre, half_width, orders):
     return np.ascontiguousarray(weights.real), np.ascontiguousarray(weights.imag)
 
 
-@jit
-def expansion_sums(x, values, centre, half_width, weights_re, weights_im, table, out_re,
-                   out_im):
-    """out_re + i out_im (C, K) = Σ_j values[c, j] exp(−i ω_k x[j]) for the band of the
-    weights (≥ orders, K; `chebyshev_weights` of centre, half_width) and values (C, N);
-    table: a scratch array (≥ orders + 1, N). The orders used follow from max |x| alone
-    (at most the weights' rows: callers size them for their longest window)."""
+@jit(inline=True)
+def _moments(table, rotated, orders, n_x, width, moments):
+    """moments[n, c] = Σ_j table[n, j] rotated[j, c] for c < width (a constant at each call)."""
+    for n in range(orders):
+        row = np.zeros(width)
+        for j in range(n_x):
+            bessel = table[n, j]
+            for c in range(width):
+                row[c] += bessel * rotated[j, c]
+        moments[n] = row
+
+
+@jit(inline=True)
+def _sums(x, values, centre, half_width, weights_re, weights_im, table, out_re, out_im,
+          n_c):
+    """`expansion_sums` for n_c vectors (a constant at each call)."""
     n_x = x.shape[0]
-    n_c = VECTORS
     z = np.empty(n_x)
     z_max = 0.0
     for j in range(n_x):
@@ -127,15 +135,9 @@ def expansion_sums(x, values, centre, half_width, weights_re, weights_im, table,
             rotated[j, c] = values[c, j] * cos
             rotated[j, n_c + c] = -values[c, j] * sin
     moments = np.zeros((orders, 2 * n_c))  # D_n: re (c), im (n_c + c)
-    for n in range(orders):
-        row = np.zeros(2 * VECTORS)
-        for j in range(n_x):
-            bessel = table[n, j]
-            for c in range(2 * VECTORS):
-                row[c] += bessel * rotated[j, c]
-        moments[n] = row
-    out_re[:, :] = 0.0
-    out_im[:, :] = 0.0
+    _moments(table, rotated, orders, n_x, 2 * n_c, moments)
+    out_re[:n_c, :] = 0.0
+    out_im[:n_c, :] = 0.0
     for c in range(n_c):
         for n in range(orders):
             m_re = moments[n, c]
@@ -143,3 +145,18 @@ def expansion_sums(x, values, centre, half_width, weights_re, weights_im, table,
             for k in range(out_re.shape[1]):
                 out_re[c, k] += weights_re[n, k] * m_re - weights_im[n, k] * m_im
                 out_im[c, k] += weights_re[n, k] * m_im + weights_im[n, k] * m_re
+
+
+@jit
+def expansion_sums(x, values, centre, half_width, weights_re, weights_im, table, out_re,
+                   out_im):
+    """out_re + i out_im (rows :C of (≥ C, K)) = Σ_j values[c, j] exp(−i ω_k x[j]) for the
+    band of the weights (≥ orders, K; `chebyshev_weights` of centre, half_width) and values
+    (C, N), C = VECTORS or 4 (transverse far fields); table: a scratch array (≥ orders + 1,
+    N). The orders used follow from max |x| alone (at most the weights' rows: callers size
+    them for their longest window)."""
+    if values.shape[0] == 4:  # constant counts let the compiler unroll the inner loops
+        _sums(x, values, centre, half_width, weights_re, weights_im, table, out_re, out_im, 4)
+    else:
+        _sums(x, values, centre, half_width, weights_re, weights_im, table, out_re, out_im,
+              VECTORS)

@@ -58,6 +58,18 @@ def _window_terms(t_obs, e, start, stop, scale, top_omega, hann, values):
     return first, count
 
 
+@jit(inline=True)
+def _project(values, j, across, out, row):
+    """out[0:4, row] = the two sums' samples values[0:3, j] and values[3:6, j] projected on
+    the unit vectors across[0], across[1] (a·u₀, a·u₁, b·u₀, b·u₁; in place when out is
+    values and row is j: the rows read, 0–5, are read before any is written)."""
+    a0, a1, a2 = values[0, j], values[1, j], values[2, j]
+    b0, b1, b2 = values[3, j], values[4, j], values[5, j]
+    for u in range(2):
+        out[u, row] = a0 * across[u, 0] + a1 * across[u, 1] + a2 * across[u, 2]
+        out[2 + u, row] = b0 * across[u, 0] + b1 * across[u, 1] + b2 * across[u, 2]
+
+
 @jit
 def _longest(offsets):
     """The most samples any particle holds (particle i: offsets[i] … offsets[i + 1])."""
@@ -97,12 +109,7 @@ def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, di
         for j in range(count):
             t_out[row + j] = t_obs[first + j]
             if project:
-                for sum_ in range(2):
-                    for u in range(2):
-                        values_out[2 * sum_ + u, row + j] = (
-                            values[3 * sum_, j] * across[u, 0]
-                            + values[3 * sum_ + 1, j] * across[u, 1]
-                            + values[3 * sum_ + 2, j] * across[u, 2])
+                _project(values, j, across, values_out, row + j)
             else:
                 for c in range(VECTORS):
                     values_out[c, row + j] = values[c, j]
@@ -128,10 +135,38 @@ def _particle_at_point(i, p, t, pos, beta, inv_g2, beta_dot, offsets, far, targe
     return n
 
 
+@jit(inline=True)
+def _add_sums(p, out_re, out_im, ratio, omega, middle, coherent, across, project, half,
+              spectrum, fluence, fluence_weight):
+    """Add one particle's sums (rows: `half` components of each quadrature sum, centred on
+    `middle`) to point p's spectrum (coherent; back from the components along across[p, 0],
+    across[p, 1] when `project`) or fluence (× fluence_weight; |Ẽ|² is the same sum in an
+    orthonormal basis)."""
+    for k in range(omega.shape[0]):
+        shift = -omega[k] * middle
+        shift_re = math.cos(shift) if coherent else 1.0
+        shift_im = math.sin(shift) if coherent else 0.0
+        power = 0.0
+        for c in range(half):
+            re = out_re[c, k] + ratio[k] * out_im[half + c, k]
+            im = out_im[c, k] - ratio[k] * out_re[half + c, k]
+            if coherent:
+                value = (re * shift_re - im * shift_im) + 1j * (re * shift_im + im * shift_re)
+                if project:  # back to x, y, z
+                    for axis in range(3):
+                        spectrum[p, k, axis] += value * across[p, c, axis]
+                else:
+                    spectrum[p, k, c] += value
+            else:
+                power += re * re + im * im
+        if not coherent:
+            fluence[p, k] += fluence_weight * power
+
+
 @jit(parallel=True)
 def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, distance_m,
                   origin_m, start, stop, omega, top_omega, hann, centre, half_width,
-                  weights_re, weights_im, coherent, fluence_weights, spectrum, fluence,
+                  weights_re, weights_im, across, coherent, fluence_weights, spectrum, fluence,
                   energy_factors, energy):
     """Add the particles' spectra at every point p of targets (P, 3) (far: directions at
     distance_m (P,) from origin_m (3,)) over observer times [start[p], stop[p]]:
@@ -141,7 +176,10 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
     the band of the weights (`expansion.chebyshev_weights` of centre, half_width, with
     enough orders for the longest window); top_omega: 2π × the top frequency. Where
     energy_factors[i] ≠ 0, adds energy_factors[i] × ∫|E|² dt (per (q/4πε0)²) over the
-    window to energy (P,)."""
+    window to energy (P,). With across (P, 2, 3) not empty (far field: E·n = 0) the sums
+    run over the two components along across[p] (4 vectors instead of 6)."""
+    project = across.shape[0] > 0
+    n_vectors = 4 if project else VECTORS
     n_k = omega.shape[0]
     ratio = np.zeros(n_k)  # ω/ω_top: the second sum's weight (f = 0 alone: 0)
     if top_omega > 0.0:
@@ -166,23 +204,17 @@ def point_spectra(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets,
                 continue
             middle = 0.5 * (t_obs[first] + t_obs[first + count - 1])
             x = t_obs[first:first + count] - middle
-            expansion_sums(x, values[:, :count], centre, half_width, weights_re, weights_im,
-                           table, out_re, out_im)
-            for k in range(n_k):
-                shift = -omega[k] * middle
-                shift_re = math.cos(shift) if coherent else 1.0
-                shift_im = math.sin(shift) if coherent else 0.0
-                power = 0.0
-                for c in range(3):
-                    re = out_re[c, k] + ratio[k] * out_im[3 + c, k]
-                    im = out_im[c, k] - ratio[k] * out_re[3 + c, k]
-                    if coherent:
-                        spectrum[p, k, c] += ((re * shift_re - im * shift_im)
-                                              + 1j * (re * shift_im + im * shift_re))
-                    else:
-                        power += re * re + im * im
-                if not coherent:
-                    fluence[p, k] += fluence_weights[i] * power
+            if project:
+                for j in range(count):
+                    _project(values, j, across[p], values, j)
+            expansion_sums(x, values[:n_vectors, :count], centre, half_width, weights_re,
+                           weights_im, table, out_re, out_im)
+            if project:  # constant counts let the compiler unroll the inner loops
+                _add_sums(p, out_re, out_im, ratio, omega, middle, coherent, across, True, 2,
+                          spectrum, fluence, fluence_weights[i])
+            else:
+                _add_sums(p, out_re, out_im, ratio, omega, middle, coherent, across, False,
+                          3, spectrum, fluence, fluence_weights[i])
 
 
 @jit(parallel=True)
