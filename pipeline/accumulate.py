@@ -81,8 +81,7 @@ class FieldAccumulator:
         coarse = sample_motions(motions, self.group, self._span_arguments, math.inf,
                                 self.settings.step_s)
         counts = np.concatenate([np.diff(offsets) for _, _, _, offsets, _ in coarse])
-        window_s = float(np.mean(self.spectra._window_s[1] - self.spectra._window_s[0]))
-        if filon_cheaper(counts, window_s, self.spectra.settings):
+        if filon_cheaper(counts, self.spectra.mean_window_s(), self.spectra.settings):
             self._resolution_s = math.inf
             self.spectra.exact_phase = True
             return coarse

@@ -205,6 +205,11 @@ class SpectrumAccumulator:
         self.flush()
         self._spectrum = value
 
+    def mean_window_s(self) -> float:
+        """The points' windows' mean length (s)."""
+        start, stop = self._window_s
+        return float(np.mean(stop - start))
+
     def __getstate__(self):  # a pickled accumulator (sent between processes) is flushed
         self.flush()
         return dict(self.__dict__)
