@@ -165,7 +165,8 @@ def test_closed_form_of_the_moving_charge_matches_quadrature():
             assert abs(numeric[c] - closed[c][0]) < 1e-6 * abs(closed[c][0])
 
 
-def _moving_charge_run(monkeypatch, filon_allowed: bool, coherent: bool = True):
+def _moving_charge_run(monkeypatch, filon_allowed: bool, coherent: bool = True,
+                       taper: str = "none"):
     v = C * math.sqrt(1 - 1 / GAMMA**2)
     width_s = IMPACT_M / (GAMMA * v)
     half_window_s = 400 * width_s
@@ -180,7 +181,7 @@ def _moving_charge_run(monkeypatch, filon_allowed: bool, coherent: bool = True):
     settings = FieldSettings(step_s=width_s, start_s=-half_window_s, stop_s=half_window_s,
                              max_frequency_hz=float(f.max()))
     (result,) = compute_fields([track], [group], settings,
-                               spectrum=SpectrumSettings(f, coherent=coherent))
+                               spectrum=SpectrumSettings(f, coherent=coherent, taper=taper))
     return f, result
 
 
@@ -204,15 +205,17 @@ def test_near_field_spectrum_of_a_moving_charge_by_filon(monkeypatch):
     assert refined.source_samples > 2 * result.source_samples
 
 
-@pytest.mark.parametrize("coherent", [True, False], ids=["coherent", "incoherent"])
-def test_filon_and_refined_routes_agree(monkeypatch, coherent):
-    f, by_filon = _moving_charge_run(monkeypatch, True, coherent)
-    _, refined = _moving_charge_run(monkeypatch, False, coherent)
+@pytest.mark.parametrize(("coherent", "taper"), [(True, "none"), (False, "none"),
+                                                 (True, "hann")])
+def test_filon_and_refined_routes_agree(monkeypatch, coherent, taper):
+    f, by_filon = _moving_charge_run(monkeypatch, True, coherent, taper)
+    _, refined = _moving_charge_run(monkeypatch, False, coherent, taper)
     if coherent:
         ours, theirs = by_filon.spectra.spectrum, refined.spectra.spectrum
     else:
         ours, theirs = by_filon.spectra.fluence, refined.spectra.fluence
     assert np.abs(ours - theirs).max() < 2e-4 * np.abs(theirs).max()
+    assert set(by_filon.spectra.transforms) == {"filon"}  # (counted once the sums are made)
     # the exact ∫|E|² dt over the window, made beside the spectra (incoherent) or apart
     assert by_filon.fluence.energy[0] > 0
     assert by_filon.fluence.energy == pytest.approx(refined.fluence.energy, rel=1e-5)
