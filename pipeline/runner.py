@@ -153,26 +153,26 @@ def run(source, *, base_dir=None, overwrite: bool = False, write: bool = True,
                                           n_rows=tracks.n_rows,
                                           progress=per_chunk)  # n particles of a chunk
             del warming  # done before the field tasks
-            cluster.close()  # the cluster's work is done
         timings["compute_s"] = time.perf_counter() - t0
-        observers = pd.concat([group.table() for group in groups], ignore_index=True)
-        spectra = None
-        if spectrum is not None:
-            spectra = spectra_table([r.spectra for r in results])
-        signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra,
-                          fluence=fluence_table(results))
-        if config.detectors:  # checked against the signal now, before anything is written
-            t0 = time.perf_counter()
-            by_group = {result.group.name: result for result in results}
-            try:
-                signals.voltages, signals.digitized = detector_tables(config.detectors, by_group)
-            except DetectorError as exc:
-                raise DetectorError(f"{run_file or 'run'}: {exc}") from None
-            timings["detectors_s"] = time.perf_counter() - t0
-        timings["total_s"] = time.perf_counter() - started
-        signals.summary = run_summary(run_file, config, tracks=tracks, results=results,
-                                      registry=registry, exporters=exporters, timings=timings,
-                                      output=target)
-        if target is not None:
-            target.commit(signals, exporters, config.plugins)
-        return signals
+    # the cluster is closed: its work is done
+    observers = pd.concat([group.table() for group in groups], ignore_index=True)
+    spectra = None
+    if spectrum is not None:
+        spectra = spectra_table([r.spectra for r in results])
+    signals = Signals(observers=observers, fields=fields_table(results), spectra=spectra,
+                      fluence=fluence_table(results))
+    if config.detectors:  # checked against the signal now, before anything is written
+        t0 = time.perf_counter()
+        by_group = {result.group.name: result for result in results}
+        try:
+            signals.voltages, signals.digitized = detector_tables(config.detectors, by_group)
+        except DetectorError as exc:
+            raise DetectorError(f"{run_file or 'run'}: {exc}") from None
+        timings["detectors_s"] = time.perf_counter() - t0
+    timings["total_s"] = time.perf_counter() - started
+    signals.summary = run_summary(run_file, config, tracks=tracks, results=results,
+                                  registry=registry, exporters=exporters, timings=timings,
+                                  output=target)
+    if target is not None:
+        target.commit(signals, exporters, config.plugins)
+    return signals

@@ -25,7 +25,6 @@ REACH_DISTANCE_M = 1e-9  # a track this close to a point reaches it
 MAX_REFINEMENTS = 200
 UNIFORM_SPLIT_MAX = 64  # pieces an interval is split into evenly in one refinement
 MAX_SAMPLES_PER_PARTICLE = 50_000_000
-MOTIONS_PER_THREAD = 1  # motions per thread at least (a heavy particle is worth a thread)
 
 
 def source_span(motion: Motion, geometry, edge_lo, edge_hi, extend: str, arguments=None):
@@ -101,9 +100,9 @@ def _runs(motions):
 
 
 def _blocks(count: int, n_threads: int) -> list:
-    """(first, stop) of up to n_threads contiguous blocks of count motions, each of at
-    least MOTIONS_PER_THREAD."""
-    pieces = max(1, min(n_threads, count // MOTIONS_PER_THREAD))
+    """(first, stop) of up to n_threads contiguous blocks of count motions, none empty (a
+    single heavy particle is worth a thread)."""
+    pieces = max(1, min(n_threads, count))
     edges = np.linspace(0, count, pieces + 1).astype(int)
     return list(zip(edges[:-1].tolist(), edges[1:].tolist(), strict=True))
 

@@ -113,6 +113,19 @@ def coherent_plan(counts, spans_s, together_span_s, frequencies_hz, model=transf
     return ("together", route) if together_s <= each_s else ("each", routes)
 
 
+def transforms_s(counts, spans_s, together_span_s, frequencies_hz, coherent: bool,
+                 model=transforms.COST) -> float:
+    """Predicted seconds of the transforms of several particles at one point: one per
+    particle (counts, spans_s), or in a coherent run the cheaper of that and one over all
+    their samples (together_span_s)."""
+    each_s = sum(transforms.cheapest_s(int(n), frequencies_hz, span, model)
+                 for n, span in zip(counts, spans_s, strict=True))
+    if not coherent:
+        return each_s
+    together_s = transforms.cheapest_s(int(sum(counts)), frequencies_hz, together_span_s, model)
+    return min(each_s, together_s)
+
+
 def filon_cheaper(coarse_counts, window_s: float, settings: SpectrumSettings,
                   model=transforms.COST) -> bool:
     """Whether the Filon-type quadrature on samples that follow the field alone (coarse_counts
@@ -125,18 +138,9 @@ def filon_cheaper(coarse_counts, window_s: float, settings: SpectrumSettings,
     counts = np.asarray(coarse_counts, dtype=float)
     if counts.size == 0:
         return False
-    filon_s = model.filon_s(float(counts.sum()), f.size)
     refined = counts + SAMPLES_PER_PERIOD * float(f.max()) * window_s
-    each_s = sum(predicted_best(int(n), f, window_s, model) for n in refined)
-    if settings.coherent:
-        each_s = min(each_s, predicted_best(int(refined.sum()), f, window_s, model))
-    return filon_s < each_s
-
-
-def predicted_best(n_samples: int, frequencies_hz, span_s: float, model=transforms.COST):
-    """Predicted seconds of the cheaper transform route for n_samples over span_s."""
-    route = transforms.choose(n_samples, frequencies_hz, span_s, model)
-    return transforms.predicted_s(n_samples, frequencies_hz, span_s, route, model)
+    return model.filon_s(float(counts.sum()), f.size) < transforms_s(
+        refined, [window_s] * refined.size, window_s, f, settings.coherent, model)
 
 
 def fluence(spectrum: np.ndarray) -> np.ndarray:
@@ -191,8 +195,10 @@ class SpectrumAccumulator:
         self._pending_samples = 0
         self._weights = (0, None, None)  # (orders, re, im) of the expansion's band
         self.exact_phase = False  # True: Filon-type quadrature (samples need not resolve f)
-        # far field: per point two unit vectors across the direction n (P, 2, 3)
-        self._across = transverse_bases(self.geometry.targets) if self.geometry.far else None
+        # far field: per point two unit vectors across the direction n (P, 2, 3); near
+        # field: none (0, 2, 3), all three components summed
+        self._across = (transverse_bases(self.geometry.targets) if self.geometry.far
+                        else np.empty((0, 2, 3)))
 
     @property
     def spectrum(self) -> np.ndarray:
@@ -302,12 +308,11 @@ class SpectrumAccumulator:
         start, stop = self._window_s
         t_out, values = np.empty(t.size), np.empty((transforms.N_VECTORS, t.size))
         firsts, counts = (np.empty(scales.size, dtype=np.int64) for _ in range(2))
-        across = self._across[p] if self._across is not None else np.empty((0, 3))
         rows = point_spectra.point_terms(
-            t, *state, offsets, scales, far, targets[p], distance_m[p], origin_m, start[p],
-            stop[p], 2.0 * np.pi * float(self.settings.frequencies_hz.max()),
-            self.settings.taper == "hann", across, t_out, values, firsts, counts)
-        if self._across is not None:  # transverse: 4 projected vectors
+            t, *state, offsets, scales, far, targets, distance_m, origin_m, start, stop, p,
+            2.0 * np.pi * float(self.settings.frequencies_hz.max()),
+            self.settings.taper == "hann", self._across, t_out, values, firsts, counts)
+        if self._across.shape[0]:  # transverse: 4 projected vectors
             values = values[:4]
         terms = [(t_out[a:a + n], values[:, a:a + n].T)
                  for a, n in zip(firsts.tolist(), counts.tolist(), strict=True) if n]
@@ -344,15 +349,8 @@ class SpectrumAccumulator:
             return False
         expansion_s = sum(model.expansion_s(n, f.size, order)
                           for n, order in zip(counts, orders, strict=True))
-        each_s = sum(transforms.predicted_s(n, f, 2.0 * half,
-                                            transforms.choose(n, f, 2.0 * half, model), model)
-                     for n, half in zip(counts, halves, strict=True))
-        if coherent:
-            total = int(sum(counts))
-            span = 2.0 * max(halves)
-            each_s = min(each_s, transforms.predicted_s(
-                total, f, span, transforms.choose(total, f, span, model), model))
-        return expansion_s <= each_s
+        return expansion_s <= transforms_s(counts, [2.0 * half for half in halves],
+                                           2.0 * max(halves), f, coherent, model)
 
     def _expansion(self, batch, halves, weights, energy=None) -> None:
         """Add the particles of batch [(t, state, field scale)] (`_half_spans`: halves) at
@@ -371,8 +369,7 @@ class SpectrumAccumulator:
             t, *state, offsets, scales, *self._kernel, *self._window_s,
             2.0 * np.pi * f, 2.0 * np.pi * float(f.max()), self.settings.taper == "hann",
             centre, half_width, weights_re, weights_im,
-            self._across if self._across is not None else np.empty((0, 2, 3)),
-            *self._sinks(len(batch), weights, energy))
+            self._across, *self._sinks(len(batch), weights, energy))
         self.transforms["expansion"] += len(batch) * self.group.n_points
 
     def _filon(self, batch, weights, energy=None) -> None:
@@ -406,7 +403,7 @@ class SpectrumAccumulator:
         with _COUNTING:  # points run in threads
             self.transforms[route] += 1
         sums = transforms.fourier_sums(t, values, f, route)
-        if self._across is not None:  # back from the projections (`_point_terms`)
+        if self._across.shape[0]:  # back from the projections (`_point_terms`)
             across = self._across[p]  # (2, 3)
             sums = np.concatenate([sums[:, :2] @ across, sums[:, 2:] @ across], axis=1)
         return spectrum_of_sums(sums, f)

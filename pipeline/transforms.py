@@ -120,6 +120,13 @@ def choose(n_samples: int, frequencies_hz: np.ndarray, span_s: float,
                                                      model))
 
 
+def cheapest_s(n_samples: int, frequencies_hz: np.ndarray, span_s: float,
+               model: CostModel = COST) -> float:
+    """Predicted seconds of the route `choose` takes."""
+    route = choose(n_samples, frequencies_hz, span_s, model)
+    return predicted_s(n_samples, frequencies_hz, span_s, route, model)
+
+
 def expansion_band(frequencies_hz: np.ndarray) -> tuple[float, float]:
     """(centre, half width) in rad/s of the band the expansion spans (never zero wide)."""
     omega = 2.0 * np.pi * np.asarray(frequencies_hz, dtype=float)

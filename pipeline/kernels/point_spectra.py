@@ -80,16 +80,16 @@ def _longest(offsets):
 
 
 @jit
-def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, distance,
-                origin, start, stop, top_omega, hann, across, t_out, values_out, firsts,
+def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, targets, distance_m,
+                origin, start, stop, p, top_omega, hann, across, t_out, values_out, firsts,
                 counts):
-    """The two Fourier sums' samples of every particle at one point (as
-    `spectra.quadrature_terms` of its fields × scales[i] over [start, stop]), packed one
-    particle after another: particle i's count[i] terms at rows firsts[i] … of t_out (N,)
-    and values_out (VECTORS, N). Returns the rows filled. With `across` (2, 3) given (not
-    empty: the far field, where E·n = 0), rows 0–3 hold the two sums projected on its two
-    unit vectors (a·u₀, a·u₁, b·u₀, b·u₁) and rows 4–5 are not written."""
-    project = across.shape[0] == 2
+    """The two Fourier sums' samples of every particle at point p (as
+    `spectra.quadrature_terms` of its fields × scales[i] over [start[p], stop[p]]), packed
+    one particle after another: particle i's count[i] terms at rows firsts[i] … of t_out
+    (N,) and values_out (VECTORS, N). Returns the rows filled. With across (P, 2, 3) not
+    empty (the far field, where E·n = 0), rows 0–3 hold the two sums projected on
+    across[p]'s two unit vectors (a·u₀, a·u₁, b·u₀, b·u₁) and rows 4–5 are not written."""
+    project = across.shape[0] > 0
     most = _longest(offsets)
     t_obs = np.empty(most)
     e = np.empty((most, 3))
@@ -101,15 +101,15 @@ def point_terms(t, pos, beta, inv_g2, beta_dot, offsets, scales, far, target, di
         n = offsets[i + 1] - lo
         hi = lo + n
         fields_kappa(t[lo:hi], pos[lo:hi], beta[lo:hi], inv_g2[lo:hi], beta_dot[lo:hi], far,
-                     target, distance, origin, t_obs[:n], e[:n], kappa[:n])
-        first, count = _window_terms(t_obs[:n], e[:n], start, stop, scales[i], top_omega,
-                                     hann, values)
+                     targets[p], distance_m[p], origin, t_obs[:n], e[:n], kappa[:n])
+        first, count = _window_terms(t_obs[:n], e[:n], start[p], stop[p], scales[i],
+                                     top_omega, hann, values)
         firsts[i] = row
         counts[i] = count
         for j in range(count):
             t_out[row + j] = t_obs[first + j]
             if project:
-                _project(values, j, across, values_out, row + j)
+                _project(values, j, across[p], values_out, row + j)
             else:
                 for c in range(VECTORS):
                     values_out[c, row + j] = values[c, j]
